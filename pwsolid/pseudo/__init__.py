@@ -1,0 +1,11 @@
+"""Pseudopotentials: analytic forms, form factors and files (layer 3)."""
+
+from .files import (Pseudopotential, bundled_pseudopotentials, default_pseudopotential_file,
+                    load_pseudopotential, resolve_pseudopotential)
+from .local import LOCAL_FORMS, AppelbaumHamann, EmptyCore, GaussianLocal, LocalForm
+
+__all__ = [
+    "Pseudopotential", "load_pseudopotential", "default_pseudopotential_file",
+    "resolve_pseudopotential", "bundled_pseudopotentials", "LocalForm", "EmptyCore",
+    "AppelbaumHamann", "GaussianLocal", "LOCAL_FORMS",
+]

@@ -1,0 +1,116 @@
+"""Classical electrostatics: Hartree potential and Ewald ion-ion energy (layer 3).
+
+Both work in a neutralising convention: the G = 0 Fourier component of every
+Coulomb interaction is dropped. For a neutral cell (valence electrons + ions)
+the dropped pieces cancel exactly, apart from the finite non-Coulomb part of the
+pseudopotentials, which ``pwsolid.energies`` adds as its own term.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+
+import numpy as np
+from scipy.special import erfc
+
+__all__ = ["hartree_potential", "hartree_energy", "ewald_energy", "coulomb_kernel"]
+
+
+def coulomb_kernel(g2: np.ndarray) -> np.ndarray:
+    """4 pi / G^2 with the G = 0 entry set to 0 (neutralising background)."""
+    return np.divide(4 * np.pi, g2, out=np.zeros_like(g2, dtype=float), where=g2 > 1e-12)
+
+
+def hartree_potential(density_g: np.ndarray, g2: np.ndarray) -> np.ndarray:
+    """Hartree potential coefficients V_H(G) = 4 pi n(G) / G^2 (G = 0 term dropped).
+
+    Parameters
+    ----------
+    density_g : ndarray, complex
+        Fourier coefficients n(G) of the density (bohr^-3), any shape.
+    g2 : ndarray, float
+        |G|^2 (bohr^-2) of the same shape.
+    """
+    return coulomb_kernel(g2) * density_g
+
+
+def hartree_energy(density_g: np.ndarray, g2: np.ndarray, volume: float) -> float:
+    """E_H = (Omega/2) sum_{G != 0} 4 pi |n(G)|^2 / G^2  (Ha)."""
+    return float(0.5 * volume * np.sum(coulomb_kernel(g2) * np.abs(density_g) ** 2))
+
+
+def ewald_energy(lattice: np.ndarray, positions: np.ndarray, charges: np.ndarray,
+                 tolerance: float = 1e-12, splitting: float | None = None) -> float:
+    """Electrostatic energy of point charges in a neutralising background (Ha).
+
+    Parameters
+    ----------
+    lattice : (3, 3) float, bohr
+        Lattice vectors as rows.
+    positions : (n, 3) float, bohr
+        Cartesian positions of the charges.
+    charges : (n,) float
+        Charges in units of e (ions carry +Z).
+    tolerance : float
+        Each neglected term of the two series is below this (Ha).
+    splitting : float, optional
+        The Ewald parameter eta (1/bohr); the default balances the two sums.
+        The result does not depend on it (a test checks that).
+
+    Notes
+    -----
+    E = 1/2 sum_ij sum_L' q_i q_j erfc(eta |r_ij + L|)/|r_ij + L|
+        + (2 pi / Omega) sum_{G != 0} exp(-G^2 / 4 eta^2) / G^2 |sum_i q_i exp(i G r_i)|^2
+        - eta/sqrt(pi) sum_i q_i^2 - pi (sum_i q_i)^2 / (2 Omega eta^2).
+
+    References
+    ----------
+    P. P. Ewald, Ann. Phys. 369, 253 (1921).
+    """
+    lattice = np.asarray(lattice, float)
+    pos = np.asarray(positions, float).reshape(-1, 3)
+    q = np.asarray(charges, float).reshape(-1)
+    volume = abs(np.linalg.det(lattice))
+    recip = 2 * np.pi * np.linalg.inv(lattice).T
+    eta = splitting if splitting is not None else math.sqrt(math.pi) / volume ** (1 / 3)
+    log_tol = -math.log(tolerance)
+
+    # real space: erfc(eta r)/r < tol  for r > r_max
+    r_max = math.sqrt(log_tol) / eta
+    while erfc(eta * r_max) / r_max > tolerance:
+        r_max *= 1.1
+    diffs = pos[:, None, :] - pos[None, :, :]
+    span = np.max(np.linalg.norm(diffs, axis=-1)) if len(pos) > 1 else 0.0
+    n_l = _lattice_range(lattice, r_max + span)
+    cells = np.array(list(itertools.product(*(range(-n, n + 1) for n in n_l))), float) @ lattice
+    qq = q[:, None] * q[None, :]
+    e_real = 0.0
+    for chunk in np.array_split(cells, max(1, len(cells) // 2000 + 1)):
+        d = np.linalg.norm(diffs[:, :, None, :] + chunk[None, None, :, :], axis=-1)
+        mask = d > 1e-10
+        ds = np.where(mask, d, 1.0)
+        e_real += 0.5 * float(np.sum(qq[:, :, None] * np.where(mask, erfc(eta * ds) / ds, 0.0)))
+
+    # reciprocal space: exp(-G^2/4eta^2)/G^2 < tol for G > g_max
+    g_max = 2 * eta * math.sqrt(log_tol)
+    n_g = _lattice_range(recip, g_max)
+    m = np.array(list(itertools.product(*(range(-n, n + 1) for n in n_g))), float)
+    g = m @ recip
+    g2 = np.einsum("ij,ij->i", g, g)
+    keep = (g2 > 1e-12) & (g2 <= g_max * g_max)
+    g, g2 = g[keep], g2[keep]
+    structure = np.exp(1j * g @ pos.T) @ q
+    e_recip = float(2 * np.pi / volume * np.sum(np.exp(-g2 / (4 * eta * eta)) / g2
+                                                * np.abs(structure) ** 2))
+    e_self = -eta / math.sqrt(math.pi) * float(np.sum(q * q))
+    e_background = -math.pi * float(np.sum(q)) ** 2 / (2 * volume * eta * eta)
+    return e_real + e_recip + e_self + e_background
+
+
+def _lattice_range(vectors: np.ndarray, radius: float) -> list[int]:
+    """Repeats along each vector needed to cover a sphere of ``radius``."""
+    # the distance between lattice planes spanned by the other two vectors
+    inv = np.linalg.inv(vectors).T
+    plane_spacing = 1.0 / np.linalg.norm(inv, axis=1)
+    return [int(math.ceil(radius / s)) for s in plane_spacing]

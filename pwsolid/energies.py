@@ -1,0 +1,69 @@
+"""Terms of the Kohn-Sham total energy (layer 3).
+
+E = T_s + E_loc + E_H + E_xc + E_ion-ion + E_G0, with
+
+* T_s = sum_k w_k sum_n f_nk sum_G |c_nk(G)|^2 |k+G|^2 / 2
+* E_loc = Omega sum_{G != 0} V_loc(G)* n(G)
+* E_H = (Omega/2) sum_{G != 0} 4 pi |n(G)|^2 / G^2
+* E_xc = int n(r) eps_xc(n(r)) d^3r on the FFT grid
+* E_ion-ion: Ewald sum of the ionic point charges in a neutralising background
+* E_G0 = (N_electrons / Omega) sum_atoms int [v_atom(r) + Z/r] d^3r, the finite
+  remainder of the three G = 0 Coulomb divergences, which cancel in a neutral cell.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, fields
+
+import numpy as np
+
+from .units import HARTREE_EV
+
+__all__ = ["EnergyTerms", "kinetic_energy", "local_energy", "xc_energy"]
+
+
+@dataclass(frozen=True)
+class EnergyTerms:
+    """The terms of the total energy, in hartree per cell."""
+
+    kinetic: float
+    local_pseudopotential: float
+    hartree: float
+    exchange_correlation: float
+    ewald: float
+    pseudopotential_g0: float
+
+    @property
+    def total(self) -> float:
+        return float(sum(getattr(self, f.name) for f in fields(self)))
+
+    def as_dict(self) -> dict:
+        """Terms and total in Ha and eV."""
+        out = {f.name: getattr(self, f.name) for f in fields(self)}
+        return {
+            "total_Ha": self.total,
+            "total_eV": self.total * HARTREE_EV,
+            "terms_Ha": out,
+            "terms_eV": {k: v * HARTREE_EV for k, v in out.items()},
+        }
+
+
+def kinetic_energy(coefficients: list[np.ndarray], kinetic: list[np.ndarray],
+                   occupations: np.ndarray, weights: np.ndarray) -> float:
+    """T_s from plane-wave coefficients (one (nb, n_pw) block per k-point)."""
+    total = 0.0
+    for c, t, f, w in zip(coefficients, kinetic, occupations, weights):
+        total += w * float(np.einsum("b,bg,g->", f, np.abs(c) ** 2, t))
+    return total
+
+
+def local_energy(v_loc_g: np.ndarray, density_g: np.ndarray, volume: float) -> tuple[float, float]:
+    """(G != 0 part, G = 0 part) of int V_loc n, from Fourier coefficients on one grid."""
+    prod = np.real(np.conj(v_loc_g) * density_g)
+    g0 = float(prod.flat[0]) * volume
+    return float(prod.sum()) * volume - g0, g0
+
+
+def xc_energy(density_r: np.ndarray, eps_xc: np.ndarray, volume: float) -> float:
+    """int n eps_xc d^3r as a grid sum."""
+    return float(np.mean(density_r * eps_xc)) * volume

@@ -1,0 +1,181 @@
+"""Pseudopotential files: our own TOML format (layer 3).
+
+A file holds one pseudopotential::
+
+    element = "Si"
+    valence_charge = 4
+    form = "appelbaum-hamann"          # a key of pwsolid.pseudo.local.LOCAL_FORMS
+    suggested_cutoff = "10 Ha"         # optional
+    [parameters]                       # every parameter with its unit
+    alpha = { value = 0.6102, unit = "bohr^-2" }
+    [source]
+    reference = "authors, journal volume, page (year), table"
+    status = "checked against the paper" | "from memory" | ...
+
+``defaults.toml`` in the same directory maps each element to the file used
+when an input names none.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..errors import InputError
+from ..resources import pseudo_dir
+from ..units import BOHR_ANGSTROM, ENERGY_UNITS, parse_quantity
+from .local import LOCAL_FORMS, LocalForm
+
+__all__ = ["Pseudopotential", "load_pseudopotential", "default_pseudopotential_file",
+           "resolve_pseudopotential", "bundled_pseudopotentials"]
+
+_ANG = 1.0 / BOHR_ANGSTROM  # one angstrom in bohr
+_PARAM_UNITS = {
+    "length": {"bohr": 1.0, "angstrom": _ANG},
+    "energy": {"Ha": 1.0, "Ry": ENERGY_UNITS["ry"], "eV": ENERGY_UNITS["ev"]},
+    "inverse_area": {"bohr^-2": 1.0, "angstrom^-2": 1.0 / _ANG ** 2},
+    "energy_per_area": {"Ha/bohr^2": 1.0, "Ry/bohr^2": 0.5},
+}
+
+
+@dataclass(frozen=True)
+class Pseudopotential:
+    """A pseudopotential read from a file.
+
+    Attributes
+    ----------
+    element : str
+    valence : float
+        Ionic charge Z seen by the valence electrons.
+    local : LocalForm
+        The analytic local part (atomic units).
+    form : str
+        Name of the analytic form.
+    source_file : Path or None
+    reference : str
+        Published source of the form and parameters.
+    status : str
+        How the parameter values were checked.
+    suggested_cutoff : float or None
+        Cutoff (Ha) the file recommends, if any.
+    """
+
+    element: str
+    valence: float
+    local: LocalForm
+    form: str
+    source_file: Path | None = None
+    reference: str = ""
+    status: str = ""
+    suggested_cutoff: float | None = None
+
+
+def bundled_pseudopotentials(element: str | None = None) -> list[str]:
+    """File names in the bundled directory, optionally only those of one element."""
+    d = pseudo_dir()
+    names = sorted(p.name for p in d.glob("*.toml") if p.name != "defaults.toml")
+    if element:
+        names = [n for n in names if n.split("-")[0] == element]
+    return names
+
+
+def default_pseudopotential_file(element: str) -> Path:
+    """The bundled file used for ``element`` when the input names none."""
+    table_file = pseudo_dir() / "defaults.toml"
+    try:
+        table = tomllib.loads(table_file.read_text())
+    except (OSError, tomllib.TOMLDecodeError) as exc:  # pragma: no cover - packaging fault
+        raise InputError(f"cannot read the table of default pseudopotentials: {exc}",
+                         source=str(table_file)) from None
+    if element not in table:
+        raise InputError(
+            f"no default pseudopotential for {element}; name a file under "
+            f"[pseudopotentials] (bundled defaults exist for {', '.join(sorted(table))})",
+            key=f"pseudopotentials.{element}")
+    return pseudo_dir() / table[element]
+
+
+def resolve_pseudopotential(element: str, name, base_dir: Path | None = None) -> Path:
+    """Find a pseudopotential file given by the user (relative to ``base_dir``, then bundled)."""
+    path = Path(name)
+    candidates = [path] if path.is_absolute() else [
+        (base_dir or Path.cwd()) / path, pseudo_dir() / path]
+    for c in candidates:
+        if c.is_file():
+            return c
+    others = bundled_pseudopotentials(element)
+    raise InputError(
+        f"pseudopotential file not found (looked in {', '.join(str(c.parent) for c in candidates)}); "
+        f"bundled files for {element}: {', '.join(others) or 'none'}",
+        key=f"pseudopotentials.{element}", value=str(name))
+
+
+def _parameter(entry, name: str, kind: str, source: str) -> float:
+    key = f"parameters.{name}"
+    if not isinstance(entry, dict) or set(entry) != {"value", "unit"}:
+        raise InputError("each parameter must be a table { value = number, unit = \"...\" }",
+                         key=key, value=entry, source=source)
+    value, unit = entry["value"], entry["unit"]
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise InputError("the value must be a number", key=key, value=value, source=source)
+    units = _PARAM_UNITS[kind]
+    if unit not in units:
+        raise InputError(f"unit must be one of {', '.join(units)}", key=key, value=unit, source=source)
+    return float(value) * units[unit]
+
+
+def load_pseudopotential(path) -> Pseudopotential:
+    """Read and validate one pseudopotential file.
+
+    Raises
+    ------
+    InputError
+        For a missing or malformed file, naming the file and the key.
+    """
+    path = Path(path)
+    src = str(path)
+    try:
+        doc = tomllib.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise InputError("pseudopotential file not found", source=src) from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(f"cannot read the file: {exc}", source=src) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"not valid TOML: {exc}", source=src) from None
+    allowed = {"element", "valence_charge", "form", "parameters", "source", "suggested_cutoff"}
+    for key in doc:
+        if key not in allowed:
+            raise InputError(f"unknown key; accepted keys: {', '.join(sorted(allowed))}",
+                             key=key, value=doc[key], source=src)
+    for key in ("element", "valence_charge", "form", "parameters"):
+        if key not in doc:
+            raise InputError("required key is missing", key=key, source=src)
+    form_name = doc["form"]
+    if form_name not in LOCAL_FORMS:
+        raise InputError(f"unknown form; accepted: {', '.join(LOCAL_FORMS)}", key="form",
+                         value=form_name, source=src)
+    z = doc["valence_charge"]
+    if isinstance(z, bool) or not isinstance(z, (int, float)) or not 0 < z <= 100:
+        raise InputError("must be a positive number of electrons", key="valence_charge",
+                         value=z, source=src)
+    cls, wanted = LOCAL_FORMS[form_name]
+    params = doc["parameters"]
+    if not isinstance(params, dict):
+        raise InputError("must be a table of parameters", key="parameters", value=params, source=src)
+    for name in params:
+        if name not in wanted:
+            raise InputError(f"unknown parameter for form '{form_name}'; accepted: {', '.join(wanted)}",
+                             key=f"parameters.{name}", value=params[name], source=src)
+    values = {n: _parameter(params[n], n, kind, src) for n, kind in wanted.items() if n in params}
+    required = [n for n in wanted if n not in values and n not in ("c2", "c3", "c4")]
+    if required:
+        raise InputError(f"missing parameters: {', '.join(required)}", key="parameters", source=src)
+    cutoff = doc.get("suggested_cutoff")
+    if cutoff is not None:
+        cutoff = parse_quantity(cutoff, "energy", key="suggested_cutoff", source=src)
+    source = doc.get("source", {})
+    return Pseudopotential(
+        element=str(doc["element"]), valence=float(z), local=cls(valence=float(z), **values),
+        form=form_name, source_file=path, reference=str(source.get("reference", "")),
+        status=str(source.get("status", "")), suggested_cutoff=cutoff)

@@ -1,0 +1,181 @@
+"""Analytic local pseudopotentials and their form factors (layer 3).
+
+Every form gives the Fourier transform of one atom's potential,
+``v(q) = int v(r) exp(-i q.r) d^3r`` (Ha bohr^3), split as
+
+    v(q) = -4 pi Z / q^2 + w(q),
+
+where ``w`` is smooth and finite at q = 0. The Coulomb tail's G = 0 divergence
+cancels against the Hartree and Ewald G = 0 terms of a neutral cell; what is
+left is ``w(0) = int [v(r) + Z/r] d^3r`` per atom, which gives the energy term
+``N_electrons / Omega * sum_atoms w(0)`` (see ``pwsolid.energies``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.special import erf
+
+__all__ = ["LocalForm", "EmptyCore", "AppelbaumHamann", "GaussianLocal", "LOCAL_FORMS"]
+
+
+class LocalForm:
+    """Interface of an analytic local pseudopotential (one atom).
+
+    Subclasses define ``valence`` (Z, the ionic charge seen by the valence
+    electrons), :meth:`short_range` w(q) and :meth:`real_space` v(r).
+    """
+
+    valence: float
+
+    def short_range(self, q: np.ndarray) -> np.ndarray:  # pragma: no cover - interface
+        raise NotImplementedError
+
+    def real_space(self, r: np.ndarray) -> np.ndarray:  # pragma: no cover - interface
+        raise NotImplementedError
+
+    def form_factor(self, q: np.ndarray) -> np.ndarray:
+        """Full v(q) in Ha bohr^3 for q > 0 (q = 0 entries get only the short-range part)."""
+        q = np.asarray(q, float)
+        q2 = q * q
+        coulomb = np.divide(-4 * np.pi * self.valence, q2, out=np.zeros_like(q2), where=q2 > 1e-20)
+        return coulomb + self.short_range(q)
+
+    @property
+    def g0_integral(self) -> float:
+        """``int [v(r) + Z/r] d^3r`` in Ha bohr^3: the finite G = 0 part."""
+        return float(self.short_range(np.zeros(1))[0])
+
+
+@dataclass(frozen=True)
+class EmptyCore(LocalForm):
+    """Ashcroft empty core: v = 0 inside ``core_radius``, -Z/r outside.
+
+    Notes
+    -----
+    v(q) = -4 pi Z cos(q r_c) / q^2, so w(q) = 4 pi Z (1 - cos q r_c)/q^2 -> 2 pi Z r_c^2.
+
+    References
+    ----------
+    N. W. Ashcroft, Phys. Lett. 23, 48 (1966).
+    """
+
+    valence: float
+    core_radius: float
+
+    def short_range(self, q):
+        q = np.asarray(q, float)
+        x = q * self.core_radius
+        small = np.abs(x) < 1e-3
+        xs = np.where(small, 1.0, x)
+        # (1 - cos x)/x^2 with its series near 0 to avoid cancellation
+        ratio = np.where(small, 0.5 - x * x / 24 + x ** 4 / 720, (1 - np.cos(xs)) / (xs * xs))
+        return 4 * np.pi * self.valence * self.core_radius ** 2 * ratio
+
+    def real_space(self, r):
+        r = np.asarray(r, float)
+        return np.where(r < self.core_radius, 0.0, -self.valence / np.maximum(r, 1e-300))
+
+
+@dataclass(frozen=True)
+class AppelbaumHamann(LocalForm):
+    """Appelbaum-Hamann local pseudopotential.
+
+    Notes
+    -----
+    v(r) = -(Z/r) erf(sqrt(alpha) r) + (v1 + v2 r^2) exp(-alpha r^2) (Ha, bohr);
+
+    w(q) = 4 pi Z (1 - exp(-q^2/4 alpha))/q^2
+           + (pi/alpha)^{3/2} exp(-q^2/4 alpha) [v1 + v2 (3/(2 alpha) - q^2/(4 alpha^2))].
+
+    References
+    ----------
+    J. A. Appelbaum and D. R. Hamann, Phys. Rev. B 8, 1777 (1973).
+    """
+
+    valence: float
+    alpha: float
+    v1: float
+    v2: float
+
+    def short_range(self, q):
+        q = np.asarray(q, float)
+        q2 = q * q
+        a = self.alpha
+        e = np.exp(-q2 / (4 * a))
+        small = q2 < 1e-8
+        q2s = np.where(small, 1.0, q2)
+        coul = np.where(small, 4 * np.pi * self.valence / (4 * a) * (1 - q2 / (8 * a)),
+                        4 * np.pi * self.valence * (1 - e) / q2s)
+        gauss = (np.pi / a) ** 1.5 * e * (self.v1 + self.v2 * (1.5 / a - q2 / (4 * a * a)))
+        return coul + gauss
+
+    def real_space(self, r):
+        r = np.asarray(r, float)
+        rs = np.maximum(r, 1e-300)
+        a = self.alpha
+        coul = np.where(r > 1e-12, -self.valence * erf(np.sqrt(a) * rs) / rs,
+                        -self.valence * 2 * np.sqrt(a / np.pi))
+        return coul + (self.v1 + self.v2 * r * r) * np.exp(-a * r * r)
+
+
+@dataclass(frozen=True)
+class GaussianLocal(LocalForm):
+    """Local part of the Goedecker-Teter-Hutter dual-space Gaussian form.
+
+    Notes
+    -----
+    With x = r / r_loc:
+    v(r) = -(Z/r) erf(x/sqrt 2) + exp(-x^2/2) [C1 + C2 x^2 + C3 x^4 + C4 x^6];
+    with g = q r_loc:
+    w(q) = 4 pi Z (1 - exp(-g^2/2))/q^2 + sqrt(8 pi^3) r_loc^3 exp(-g^2/2)
+           {C1 + C2 (3 - g^2) + C3 (15 - 10 g^2 + g^4) + C4 (105 - 105 g^2 + 21 g^4 - g^6)}.
+
+    References
+    ----------
+    S. Goedecker, M. Teter and J. Hutter, Phys. Rev. B 54, 1703 (1996).
+    """
+
+    valence: float
+    r_loc: float
+    c1: float = 0.0
+    c2: float = 0.0
+    c3: float = 0.0
+    c4: float = 0.0
+
+    def short_range(self, q):
+        q = np.asarray(q, float)
+        q2 = q * q
+        g2 = q2 * self.r_loc ** 2
+        e = np.exp(-g2 / 2)
+        small = g2 < 1e-8
+        q2s = np.where(small, 1.0, q2)
+        coul = np.where(small, 4 * np.pi * self.valence * self.r_loc ** 2 / 2 * (1 - g2 / 4),
+                        4 * np.pi * self.valence * (1 - e) / q2s)
+        poly = (self.c1 + self.c2 * (3 - g2) + self.c3 * (15 - 10 * g2 + g2 * g2)
+                + self.c4 * (105 - 105 * g2 + 21 * g2 * g2 - g2 ** 3))
+        return coul + math.sqrt(8 * np.pi ** 3) * self.r_loc ** 3 * e * poly
+
+    def real_space(self, r):
+        r = np.asarray(r, float)
+        x = r / self.r_loc
+        rs = np.maximum(r, 1e-300)
+        coul = np.where(r > 1e-12, -self.valence * erf(x / np.sqrt(2)) / rs,
+                        -self.valence * np.sqrt(2 / np.pi) / self.r_loc)
+        x2 = x * x
+        return coul + np.exp(-x2 / 2) * (self.c1 + self.c2 * x2 + self.c3 * x2 ** 2 + self.c4 * x2 ** 3)
+
+
+#: Local forms by the name used in pseudopotential files, with the parameters
+#: each needs and the unit kind of each parameter.
+LOCAL_FORMS = {
+    "empty-core": (EmptyCore, {"core_radius": "length"}),
+    "appelbaum-hamann": (AppelbaumHamann, {"alpha": "inverse_area", "v1": "energy",
+                                           "v2": "energy_per_area"}),
+    "goedecker-teter-hutter-local": (GaussianLocal, {"r_loc": "length", "c1": "energy",
+                                                     "c2": "energy", "c3": "energy",
+                                                     "c4": "energy"}),
+}

@@ -1,0 +1,363 @@
+"""The self-consistent field driver: one Kohn-Sham ground state (layer 4).
+
+:func:`prepare` builds everything that stays fixed during the iterations
+(symmetry, k-points, bases, FFT plans, ionic potential, Ewald energy);
+:func:`scf_step` advances a small explicit :class:`SCFState`; :func:`ground_state`
+owns the loop, the stopping rules and the log, and returns a :class:`GroundState`.
+"""
+
+from __future__ import annotations
+
+import time
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+
+from . import xc as _xc
+from .basis import PlaneWaveBasis, density_sphere, fft_grid_for_cutoff, grid_g_vectors, make_basis
+from .crystal import Crystal
+from .eigensolver import davidson, dense_lowest_eigenpairs
+from .electrostatics import ewald_energy, hartree_energy, hartree_potential
+from .energies import EnergyTerms, kinetic_energy, local_energy, xc_energy
+from .errors import ConvergenceWarning, InputError
+from .fft import FFTGrid, make_fft_grid
+from .hamiltonian import KPointHamiltonian, kinetic_preconditioner, local_potential
+from .kpoints import KPointSet, irreducible_kpoints
+from .mixing import PulayMixer
+from .occupations import BandEdges, aufbau_occupations, band_edges
+from .pseudo import Pseudopotential, default_pseudopotential_file, load_pseudopotential
+from .settings import GroundStateSettings
+from .symmetry import SymmetryOperations, find_symmetry, identity_only, make_density_symmetrizer
+
+__all__ = ["SystemSetup", "SCFState", "GroundState", "prepare", "scf_step", "ground_state",
+           "load_pseudopotentials"]
+
+Log = Callable[[str], None]
+
+
+def load_pseudopotentials(species, choices) -> dict[str, Pseudopotential]:
+    """One Pseudopotential per species: given objects, given files, or the bundled default."""
+    out = {}
+    for s in dict.fromkeys(species):
+        choice = choices.get(s)
+        if isinstance(choice, Pseudopotential):
+            pp = choice
+        else:
+            path = default_pseudopotential_file(s) if choice is None else Path(choice)
+            pp = load_pseudopotential(path)
+        if pp.element != s:
+            raise InputError(f"the file is for element {pp.element}, not {s}",
+                             key=f"pseudopotentials.{s}", value=str(pp.source_file))
+        out[s] = pp
+    return out
+
+
+@dataclass(frozen=True, eq=False)
+class SystemSetup:
+    """Everything fixed during the SCF iterations of one crystal and settings."""
+
+    crystal: Crystal
+    settings: GroundStateSettings
+    pseudopotentials: dict
+    functional: object
+    symmetry: SymmetryOperations
+    kpoints: KPointSet
+    grid_shape: tuple[int, int, int]
+    fft: FFTGrid
+    bases: list[PlaneWaveBasis]
+    g2: np.ndarray                  # |G|^2 on the grid, bohr^-2
+    v_loc_g: np.ndarray             # ionic local potential, Fourier coefficients (Ha)
+    v_loc_r: np.ndarray             # the same on the real-space grid
+    ewald: float
+    n_electrons: float
+    n_bands: int
+    symmetrize: Callable | None
+
+    @property
+    def volume(self) -> float:
+        return self.crystal.volume
+
+
+def prepare(crystal: Crystal, settings: GroundStateSettings | None = None) -> SystemSetup:
+    """Build the fixed set-up of a ground-state calculation."""
+    settings = settings or GroundStateSettings()
+    pps = load_pseudopotentials(crystal.species, settings.pseudopotentials)
+    functional = _xc.get_functional(settings.functional)
+    n_el = float(sum(pps[s].valence for s in crystal.species))
+    symmetry = find_symmetry(crystal) if settings.use_symmetry else identity_only()
+    kpts = irreducible_kpoints(settings.kpoint_mesh, settings.kpoint_shift,
+                               symmetry if settings.use_symmetry else None,
+                               time_reversal=settings.use_symmetry)
+    grid = settings.fft_grid or fft_grid_for_cutoff(crystal.lattice, settings.cutoff)
+    try:
+        bases = [make_basis(crystal.lattice, k, settings.cutoff, grid) for k in kpts.fractional]
+    except ValueError as exc:
+        raise InputError(f"{exc}; use a larger grid or remove the setting",
+                         key="basis.fft_grid", value=list(grid)) from None
+    n_occ = int(np.ceil(n_el / 2 - 1e-8))
+    n_bands = n_occ + settings.empty_bands
+    smallest = min(b.size for b in bases)
+    if n_bands > smallest:
+        raise InputError(f"{n_bands} bands need at least as many plane waves, but a k-point has "
+                         f"only {smallest}; raise the cutoff", key="basis.cutoff",
+                         value=settings.cutoff)
+    g = grid_g_vectors(crystal.lattice, grid)
+    g2 = np.einsum("...i,...i->...", g, g)
+    forms = {s: pp.local for s, pp in pps.items()}
+    fft = make_fft_grid(grid, batch=max(1, min(n_bands, 16)))
+    v_loc_g = local_potential(crystal.lattice, crystal.positions, crystal.species, forms, grid)
+    v_loc_r = fft.field_to_real(v_loc_g).real
+    ewald = ewald_energy(crystal.lattice, crystal.cartesian_positions,
+                         [pps[s].valence for s in crystal.species])
+    symmetrize = None
+    if kpts.operations is not None and kpts.operations.n_ops > 1:
+        sphere = density_sphere(crystal.lattice, settings.cutoff, grid)
+        symmetrize = make_density_symmetrizer(kpts.operations, grid, sphere)
+    return SystemSetup(crystal, settings, pps, functional, symmetry, kpts, tuple(grid), fft,
+                       bases, g2, v_loc_g, v_loc_r, ewald, n_el, n_bands, symmetrize)
+
+
+@dataclass
+class SCFState:
+    """What changes from one SCF iteration to the next."""
+
+    density: np.ndarray                 # input density n_in(r), bohr^-3
+    wavefunctions: list | None = None   # per k: (n_bands, n_pw) complex
+    eigenvalues: np.ndarray | None = None
+    occupations: np.ndarray | None = None
+    output_density: np.ndarray | None = None
+    energy: EnergyTerms | None = None
+    residual: float = np.inf
+    iteration: int = 0
+    applications: int = 0               # single-vector H applications so far
+    history: list = field(default_factory=list)
+
+
+def _effective_potential(setup: SystemSetup, density: np.ndarray):
+    n_g = setup.fft.field_to_reciprocal(density)
+    v_h = setup.fft.field_to_real(hartree_potential(n_g, setup.g2)).real
+    eps, v_xc = setup.functional.evaluate(density)
+    return setup.v_loc_r + v_h + v_xc
+
+
+def _initial_guess(basis: PlaneWaveBasis, potential_g: np.ndarray, n_bands: int,
+                   shape) -> np.ndarray:
+    """Lowest states of H in the slowest plane waves (complete shells), padded into the basis."""
+    n_small = min(basis.size, max(3 * n_bands, 60))
+    kin = basis.kinetic
+    while n_small < basis.size and abs(kin[n_small] - kin[n_small - 1]) < 1e-8:
+        n_small += 1
+    m = basis.miller[:n_small]
+    dm = (m[:, None, :] - m[None, :, :]) % np.array(shape)
+    h = potential_g[dm[..., 0], dm[..., 1], dm[..., 2]]
+    h[np.diag_indices_from(h)] += kin[:n_small]
+    _, vecs = dense_lowest_eigenpairs(0.5 * (h + h.conj().T), n_bands)
+    guess = np.zeros((n_bands, basis.size), dtype=complex)
+    guess[:, :n_small] = vecs
+    # a little noise lets the solver leave the small subspace's symmetry sector if needed
+    rng = np.random.default_rng(0)
+    guess[:, n_small:] = 1e-3 * (rng.standard_normal((n_bands, basis.size - n_small))
+                                 / (1 + kin[n_small:]))
+    return guess
+
+
+def _eigensolver_tolerance(residual: float, iteration: int) -> float:
+    # Loose while the density is far from self-consistency, tight near the end;
+    # the energy error goes as the square of the residual norm.
+    if iteration == 1:
+        return 1e-2
+    return float(np.clip(0.05 * residual, 1e-7, 1e-2))
+
+
+def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
+    """One SCF iteration: potential from n_in, eigenstates, occupations, n_out and energy."""
+    state.iteration += 1
+    v_eff = _effective_potential(setup, state.density)
+    tol = _eigensolver_tolerance(state.residual, state.iteration)
+    nb = setup.n_bands
+    fresh = state.wavefunctions is None
+    if fresh:
+        v_eff_g = setup.fft.field_to_reciprocal(v_eff)
+        state.wavefunctions = [_initial_guess(b, v_eff_g, nb, setup.grid_shape) for b in setup.bases]
+    eigs = np.empty((len(setup.bases), nb))
+    applications = 0
+    for ik, basis in enumerate(setup.bases):
+        ham = KPointHamiltonian(basis, setup.fft, v_eff)
+        result = davidson(ham.apply, kinetic_preconditioner(basis.kinetic),
+                          state.wavefunctions[ik], tolerance=tol, max_iterations=4 if not fresh else 30)
+        state.wavefunctions[ik] = result.vectors
+        eigs[ik] = result.eigenvalues
+        applications += result.n_applications
+        state.blas_seconds = getattr(state, "blas_seconds", 0.0) + result.seconds_blas
+    occ = aufbau_occupations(len(setup.bases), nb, setup.n_electrons)
+    n_out = _density(setup, state.wavefunctions, occ)
+    energy = _energy(setup, state.wavefunctions, occ, n_out)
+    residual = float(np.mean(np.abs(n_out - state.density)) * setup.volume / setup.n_electrons)
+    previous = state.energy.total if state.energy is not None else None
+    state.eigenvalues, state.occupations, state.output_density = eigs, occ, n_out
+    state.energy, state.residual = energy, residual
+    state.applications += applications
+    state.history.append({
+        "iteration": state.iteration,
+        "total_energy_Ha": energy.total,
+        "energy_change_Ha": None if previous is None else energy.total - previous,
+        "density_residual": residual,
+        "eigensolver_tolerance": tol,
+        "hamiltonian_applications_per_band": applications / (nb * len(setup.bases)),
+    })
+    return state
+
+
+def _density(setup: SystemSetup, wavefunctions, occupations) -> np.ndarray:
+    n = np.zeros(setup.grid_shape)
+    for basis, c, f, w in zip(setup.bases, wavefunctions, occupations, setup.kpoints.weights):
+        sel = f > 0
+        psi = setup.fft.to_real(basis.scatter(c[sel]))
+        n += w * np.einsum("b,bxyz->xyz", f[sel], (psi.conj() * psi).real)
+    n /= setup.volume
+    if setup.symmetrize is not None:
+        n = setup.symmetrize(n)
+    return n
+
+
+def _energy(setup: SystemSetup, wavefunctions, occupations, density) -> EnergyTerms:
+    n_g = setup.fft.field_to_reciprocal(density)
+    e_loc, e_g0 = local_energy(setup.v_loc_g, n_g, setup.volume)
+    eps, _ = setup.functional.evaluate(density)
+    return EnergyTerms(
+        kinetic=kinetic_energy(wavefunctions, [b.kinetic for b in setup.bases], occupations,
+                               setup.kpoints.weights),
+        local_pseudopotential=e_loc,
+        hartree=hartree_energy(n_g, setup.g2, setup.volume),
+        exchange_correlation=xc_energy(density, eps, setup.volume),
+        ewald=setup.ewald,
+        pseudopotential_g0=e_g0,
+    )
+
+
+@dataclass(frozen=True, eq=False)
+class GroundState:
+    """The result of a ground-state calculation (atomic units).
+
+    ``as_document()`` in :mod:`pwsolid.results` turns it into the JSON result.
+    """
+
+    setup: SystemSetup
+    converged: bool
+    iterations: int
+    energy: EnergyTerms
+    eigenvalues: np.ndarray          # (n_k, n_bands) Ha
+    occupations: np.ndarray          # (n_k, n_bands)
+    density: np.ndarray              # (*grid) bohr^-3, self-consistent output density
+    wavefunctions: list
+    history: list
+    band_edges: BandEdges
+    hamiltonian_applications: int
+    wall_seconds: float
+    fft_seconds: float
+    blas_seconds: float
+    messages: tuple[str, ...] = ()
+
+    @property
+    def crystal(self) -> Crystal:
+        return self.setup.crystal
+
+    @property
+    def settings(self) -> GroundStateSettings:
+        return self.setup.settings
+
+    @property
+    def kpoints(self) -> KPointSet:
+        return self.setup.kpoints
+
+    @property
+    def total_energy(self) -> float:
+        return self.energy.total
+
+    @property
+    def applications_per_band(self) -> float:
+        return self.hamiltonian_applications / (self.setup.n_bands * len(self.setup.bases))
+
+
+def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, *,
+                 log: Log | None = None, initial_density: np.ndarray | None = None,
+                 setup: SystemSetup | None = None) -> GroundState:
+    """Self-consistent Kohn-Sham ground state of a crystal.
+
+    Parameters
+    ----------
+    crystal
+        The crystal.
+    settings
+        Numerical settings (defaults: ``GroundStateSettings()``).
+    log
+        Called with each line of the live iteration table (``print`` for a terminal).
+    initial_density
+        Starting density on the FFT grid (default: uniform).
+    setup
+        A prepared set-up to reuse (must match crystal and settings).
+
+    Returns
+    -------
+    GroundState
+        With ``converged`` False (and a ConvergenceWarning) if the tolerances
+        were not met within ``max_iterations``.
+    """
+    t_start = time.perf_counter()
+    setup = setup or prepare(crystal, settings)
+    s = setup.settings
+    setup.fft.reset_counters()
+    if initial_density is not None:
+        density = np.array(initial_density, float)
+        if density.shape != setup.grid_shape:
+            raise InputError("the starting density is on a different FFT grid",
+                             key="initial_density", value=list(density.shape))
+    else:
+        density = np.full(setup.grid_shape, setup.n_electrons / setup.volume)
+    mixer = PulayMixer(s.mixing_weight, s.mixing_history)
+    state = SCFState(density=density)
+    emit = log or (lambda line: None)
+    emit(f"{'iter':>4} {'total energy (Ha)':>20} {'change (Ha)':>12} {'density res.':>12} "
+         f"{'H/band':>7} {'seconds':>8}")
+    converged = False
+    previous = None
+    while state.iteration < s.max_iterations:
+        t0 = time.perf_counter()
+        state = scf_step(setup, state)
+        rec = state.history[-1]
+        rec["seconds"] = time.perf_counter() - t0
+        change = rec["energy_change_Ha"]
+        emit(f"{rec['iteration']:>4} {rec['total_energy_Ha']:>20.10f} "
+             f"{'' if change is None else f'{change:12.3e}':>12} {rec['density_residual']:>12.3e} "
+             f"{rec['hamiltonian_applications_per_band']:>7.2f} {rec['seconds']:>8.2f}")
+        if (change is not None and abs(change) < s.energy_tolerance
+                and state.residual < s.density_tolerance):
+            converged = True
+            break
+        previous = state.energy.total
+        shape = state.density.shape
+        state.density = mixer.mix(state.density.ravel(), state.output_density.ravel()).reshape(shape)
+    messages = []
+    if not converged:
+        msg = (f"SCF not converged after {state.iteration} iterations (last energy change "
+               f"{state.history[-1]['energy_change_Ha']}, density residual {state.residual:.2e}); "
+               "raise self_consistency.max_iterations or lower self_consistency.mixing_weight")
+        messages.append(msg)
+        warnings.warn(msg, ConvergenceWarning, stacklevel=2)
+    edges = band_edges(state.eigenvalues, state.occupations)
+    if edges.gap is not None and edges.gap < 0:
+        msg = ("the lowest unoccupied level lies below the highest occupied one: this system is "
+               "a metal, and fixed integer occupations do not describe it")
+        messages.append(msg)
+        warnings.warn(msg, ConvergenceWarning, stacklevel=2)
+    del previous
+    return GroundState(
+        setup=setup, converged=converged, iterations=state.iteration, energy=state.energy,
+        eigenvalues=state.eigenvalues, occupations=state.occupations,
+        density=state.output_density, wavefunctions=state.wavefunctions, history=state.history,
+        band_edges=edges, hamiltonian_applications=state.applications,
+        wall_seconds=time.perf_counter() - t_start, fft_seconds=setup.fft.seconds,
+        blas_seconds=getattr(state, "blas_seconds", 0.0), messages=tuple(messages))
