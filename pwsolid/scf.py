@@ -27,6 +27,7 @@ from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, kinetic_preconditioner, local_potential
 from .kpoints import KPointSet, irreducible_kpoints
 from .mixing import PulayMixer
+from .parallel import fft_threads_for, single_threaded_blas
 from .occupations import BandEdges, aufbau_occupations, band_edges
 from .pseudo import Pseudopotential, default_pseudopotential_file, load_pseudopotential
 from .settings import GroundStateSettings
@@ -107,7 +108,7 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None) -> Sy
     g = grid_g_vectors(crystal.lattice, grid)
     g2 = np.einsum("...i,...i->...", g, g)
     forms = {s: pp.local for s, pp in pps.items()}
-    fft = make_fft_grid(grid, batch=max(1, min(n_bands, 16)))
+    fft = make_fft_grid(grid, batch=max(1, min(n_bands, 16)), threads=fft_threads_for(grid))
     v_loc_g = local_potential(crystal.lattice, crystal.positions, crystal.species, forms, grid)
     v_loc_r = fft.field_to_real(v_loc_g).real
     ewald = ewald_energy(crystal.lattice, crystal.cartesian_positions,
@@ -306,6 +307,11 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
         With ``converged`` False (and a ConvergenceWarning) if the tolerances
         were not met within ``max_iterations``.
     """
+    with single_threaded_blas():
+        return _ground_state(crystal, settings, log, initial_density, setup)
+
+
+def _ground_state(crystal, settings, log, initial_density, setup) -> GroundState:
     t_start = time.perf_counter()
     setup = setup or prepare(crystal, settings)
     s = setup.settings
