@@ -1,0 +1,174 @@
+"""Command line: ``pwsolid <command> ...`` (layer 6).
+
+A thin layer over the Python API: arguments are parsed into the same validated
+objects, the public functions do the work, and this module only prints and
+writes. ``main(argv) -> int`` returns the exit code (see ``pwsolid.errors``).
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import traceback
+import warnings
+from pathlib import Path
+
+from ._version import __version__
+from .errors import (EXIT_INTERNAL, EXIT_INVALID_INPUT, EXIT_NOT_CONVERGED, EXIT_OK, EXIT_USAGE,
+                     ConvergenceWarning, InputError)
+from .units import HARTREE_EV
+
+__all__ = ["main", "main_entry", "build_parser"]
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="pwsolid",
+        description="Plane-wave Kohn-Sham LDA calculations for simple solids.",
+        epilog="Exit codes: 0 success, 2 usage error, 3 invalid input, 4 not converged, "
+               "70 internal error.")
+    parser.add_argument("--version", action="version", version=f"pwsolid {__version__}")
+    sub = parser.add_subparsers(dest="command", metavar="command")
+
+    run = sub.add_parser("ground-state", help="self-consistent ground state from an input file",
+                         description="Run a self-consistent ground-state calculation. With no "
+                                     "input file the bundled silicon demo runs.")
+    run.add_argument("input", nargs="?", help="TOML input file (default: the bundled demo)")
+    run.add_argument("--result-file", help="where to write the JSON result (overrides the input)")
+    run.add_argument("--density-file", help="where to write the density (overrides the input)")
+    run.add_argument("--quiet", action="store_true", help="print only the summary")
+
+    check = sub.add_parser("check-input", help="validate an input file without running it")
+    check.add_argument("input")
+
+    sub.add_parser("input-keys", help="list every input key with its type, unit and default")
+    sub.add_parser("list-pseudopotentials", help="list the bundled pseudopotential files")
+    return parser
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run the command line with ``argv`` (default ``sys.argv[1:]``); return the exit code."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:      # argparse's own usage errors and --help
+        return EXIT_OK if exc.code in (0, None) else EXIT_USAGE
+    if args.command is None:
+        parser.print_help()
+        return EXIT_USAGE
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ConvergenceWarning)
+            return _COMMANDS[args.command](args)
+    except InputError as exc:
+        print(f"pwsolid: invalid input: {exc}", file=sys.stderr)
+        return EXIT_INVALID_INPUT
+    except KeyboardInterrupt:
+        print("pwsolid: interrupted", file=sys.stderr)
+        return 130
+    except Exception:  # noqa: BLE001 - the last line of defence
+        print("pwsolid: internal error (please report it with the input file):", file=sys.stderr)
+        traceback.print_exc()
+        return EXIT_INTERNAL
+
+
+def main_entry() -> None:
+    """Console-script entry point."""
+    sys.exit(main())
+
+
+def _ground_state(args) -> int:
+    from .config import load_input
+    from .resources import demo_input
+    from .results import ground_state_document, save_density, write_json
+    from .scf import ground_state
+
+    path = Path(args.input) if args.input else demo_input()
+    if not args.input:
+        print(f"No input file given: running the bundled demo {path.name}")
+    run = load_input(path)
+    result_file = Path(args.result_file) if args.result_file else run.result_file
+    density_file = Path(args.density_file) if args.density_file else run.density_file
+    say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
+    c = run.crystal
+    say(f"{run.title or path.name}")
+    say(f"  {c.n_atoms} atoms ({', '.join(c.species)}), volume {c.volume:.4f} bohr^3, "
+        f"cutoff {run.settings.cutoff:g} Ha, k-mesh {'x'.join(map(str, run.settings.kpoint_mesh))}")
+    gs = ground_state(c, run.settings, log=say)
+    doc = ground_state_document(gs, input_echo=run.echo, title=run.title)
+    write_json(result_file, doc)
+    save_density(density_file, gs)
+    print(_summary(doc))
+    print(f"Result written to {result_file}\nDensity written to {density_file}")
+    if not gs.converged:
+        print("pwsolid: " + gs.messages[0], file=sys.stderr)
+        return EXIT_NOT_CONVERGED
+    return EXIT_OK
+
+
+def _summary(doc: dict) -> str:
+    e = doc["energy"]
+    lines = ["", "Total energy and its terms", "-" * 52,
+             f"  {'term':<24}{'Ha':>13}{'eV':>15}"]
+    for name, value in e["terms_Ha"].items():
+        lines.append(f"  {name.replace('_', ' '):<24}{value:>13.8f}{value * HARTREE_EV:>15.6f}")
+    lines.append(f"  {'total':<24}{e['total_Ha']:>13.8f}{e['total_eV']:>15.6f}")
+    b = doc["band_edges"]
+    lines.append("")
+    lines.append(f"  highest occupied level   {b['highest_occupied_eV']:.4f} eV "
+                 f"at k = {_k(b['highest_occupied_kpoint'])}")
+    if b["lowest_unoccupied_eV"] is not None:
+        lines.append(f"  lowest unoccupied level  {b['lowest_unoccupied_eV']:.4f} eV "
+                     f"at k = {_k(b['lowest_unoccupied_kpoint'])}")
+        lines.append(f"  band gap on the mesh     {b['gap_eV']:.4f} eV ({b['gap_kind']})")
+    s = doc["scf"]
+    lines.append(f"  SCF {'converged' if doc['converged'] else 'NOT converged'} in "
+                 f"{s['iterations']} iterations, {s['hamiltonian_applications_per_band']:.1f} "
+                 f"Hamiltonian applications per band, {doc['timing']['wall_seconds']:.1f} s")
+    return "\n".join(lines)
+
+
+def _k(k) -> str:
+    return "(" + ", ".join(f"{x:.4f}" for x in k) + ")"
+
+
+def _check_input(args) -> int:
+    from .config import load_input
+
+    run = load_input(args.input)
+    s = run.settings
+    print(f"{args.input}: valid. {run.crystal.n_atoms} atoms, cutoff {s.cutoff:g} Ha, "
+          f"k-mesh {'x'.join(map(str, s.kpoint_mesh))}, functional {s.functional}")
+    return EXIT_OK
+
+
+def _input_keys(args) -> int:
+    from .config import schema_table
+
+    rows = schema_table()
+    for row in rows:
+        print(f"{row['key']:<36} {row['type']:<10} {str(row.get('default', '')):<18} "
+              f"{row['description']}")
+    return EXIT_OK
+
+
+def _list_pseudopotentials(args) -> int:
+    from .pseudo import bundled_pseudopotentials, load_pseudopotential
+    from .resources import pseudo_dir
+
+    for name in bundled_pseudopotentials():
+        pp = load_pseudopotential(pseudo_dir() / name)
+        print(f"{name:<34} Z={pp.valence:g}  {pp.form:<30} {pp.reference}")
+    return EXIT_OK
+
+
+_COMMANDS = {
+    "ground-state": _ground_state,
+    "check-input": _check_input,
+    "input-keys": _input_keys,
+    "list-pseudopotentials": _list_pseudopotentials,
+}
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main_entry()

@@ -1,0 +1,209 @@
+"""Result documents (JSON) and density checkpoints (.npz) (layer 6).
+
+The JSON schema is versioned by ``RESULT_SCHEMA`` and documented in the README.
+Files are written atomically (temporary file in the same directory, fsync,
+rename) so that a crash never leaves half a document. Checkpoints are plain
+numpy archives with a format version and a SHA-256 checksum of their arrays;
+they are read with ``allow_pickle=False``.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import platform
+import tempfile
+from pathlib import Path
+
+import numpy as np
+
+from ._version import __version__
+from .errors import InputError
+from .scf import GroundState
+from .units import BOHR_ANGSTROM, HARTREE_EV
+
+__all__ = ["RESULT_SCHEMA", "DENSITY_FORMAT", "ground_state_document", "write_json",
+           "save_density", "load_density", "atomic_write_bytes"]
+
+RESULT_SCHEMA = "pwsolid.ground-state/1"
+DENSITY_FORMAT = "pwsolid.density/1"
+
+
+def _ev(x):
+    return None if x is None else float(x) * HARTREE_EV
+
+
+def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
+                          title: str = "") -> dict:
+    """The JSON-ready result document of a ground state (schema ``RESULT_SCHEMA``)."""
+    setup = gs.setup
+    edges = gs.band_edges
+    kf = setup.kpoints.fractional
+    energies = gs.energy.as_dict()
+    doc = {
+        "schema": RESULT_SCHEMA,
+        "title": title,
+        "program": {"name": "pwsolid", "version": __version__,
+                    "python": platform.python_version()},
+        "converged": bool(gs.converged),
+        "messages": list(gs.messages),
+        "energy": {
+            "total_Ha": energies["total_Ha"],
+            "total_eV": energies["total_eV"],
+            "per_atom_eV": energies["total_eV"] / gs.crystal.n_atoms,
+            "terms_Ha": energies["terms_Ha"],
+            "terms_eV": energies["terms_eV"],
+        },
+        "band_edges": {
+            "highest_occupied_eV": _ev(edges.highest_occupied),
+            "lowest_unoccupied_eV": _ev(edges.lowest_unoccupied),
+            "gap_eV": _ev(edges.gap),
+            "gap_kind": None if edges.gap is None else ("direct" if edges.is_direct else "indirect"),
+            "highest_occupied_kpoint": kf[edges.highest_occupied_k].tolist(),
+            "lowest_unoccupied_kpoint": (None if edges.lowest_unoccupied_k is None
+                                         else kf[edges.lowest_unoccupied_k].tolist()),
+            "note": "extrema over the k-points of the mesh only",
+        },
+        "scf": {
+            "iterations": gs.iterations,
+            "hamiltonian_applications_per_band": gs.applications_per_band,
+            "history": gs.history,
+        },
+        "kpoints": {
+            "mesh": list(setup.kpoints.mesh),
+            "shift": list(setup.kpoints.shift),
+            "fractional": kf.tolist(),
+            "weights": setup.kpoints.weights.tolist(),
+            "full_mesh_size": int(setup.kpoints.full_mesh_size),
+        },
+        "eigenvalues_eV": (gs.eigenvalues * HARTREE_EV).tolist(),
+        "occupations": gs.occupations.tolist(),
+        "basis": {
+            "cutoff_Ha": setup.settings.cutoff,
+            "plane_waves_per_kpoint": [b.size for b in setup.bases],
+            "fft_grid": list(setup.grid_shape),
+        },
+        "crystal": {
+            **gs.crystal.as_dict(),
+            "lattice_vectors_angstrom": (gs.crystal.lattice * BOHR_ANGSTROM).tolist(),
+            "volume_angstrom3": gs.crystal.volume * BOHR_ANGSTROM ** 3,
+            "space_group": setup.symmetry.international_symbol,
+            "space_group_number": int(setup.symmetry.space_group_number),
+            "symmetry_operations_used": int(setup.kpoints.operations.n_ops
+                                            if setup.kpoints.operations is not None else 1),
+        },
+        "electrons_per_cell": setup.n_electrons,
+        "bands": setup.n_bands,
+        "pseudopotentials": {
+            s: {"file": str(pp.source_file), "form": pp.form, "valence": pp.valence,
+                "reference": pp.reference, "status": pp.status}
+            for s, pp in setup.pseudopotentials.items()},
+        "settings": setup.settings.as_dict(),
+        "input": input_echo,
+        "timing": {"wall_seconds": gs.wall_seconds, "fft_seconds": gs.fft_seconds,
+                   "subspace_blas_seconds": gs.blas_seconds},
+        "units": {"energy": "Ha and eV as suffixed", "length": "bohr unless suffixed",
+                  "kpoints": "fractional coordinates of the reciprocal lattice vectors"},
+    }
+    return doc
+
+
+def atomic_write_bytes(path, data: bytes) -> None:
+    """Write a file so that readers see either the old or the complete new content."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        with _suppress():
+            os.unlink(tmp)
+        raise
+
+
+class _suppress:
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        return True
+
+
+def write_json(path, document: dict) -> None:
+    """Write a JSON document atomically (NaN and infinities refused)."""
+    text = json.dumps(document, indent=2, allow_nan=False, default=_json_default)
+    atomic_write_bytes(path, (text + "\n").encode())
+
+
+def _json_default(obj):
+    if isinstance(obj, np.generic):
+        return obj.item()
+    if isinstance(obj, np.ndarray):
+        return obj.tolist()
+    if isinstance(obj, Path):
+        return str(obj)
+    raise TypeError(f"cannot store {type(obj).__name__} in JSON")
+
+
+def _checksum(arrays: dict) -> str:
+    h = hashlib.sha256()
+    for name in sorted(arrays):
+        a = np.ascontiguousarray(arrays[name])
+        h.update(name.encode())
+        h.update(str(a.dtype).encode())
+        h.update(str(a.shape).encode())
+        h.update(a.tobytes())
+    return h.hexdigest()
+
+
+def save_density(path, gs: GroundState) -> None:
+    """Save the self-consistent density with what identifies it (atomically)."""
+    import io
+
+    arrays = {
+        "density": np.asarray(gs.density, float),
+        "lattice_bohr": gs.crystal.lattice,
+        "fractional_positions": gs.crystal.positions,
+        "cutoff_Ha": np.array(gs.settings.cutoff),
+        "fft_grid": np.array(gs.setup.grid_shape),
+        "n_electrons": np.array(gs.setup.n_electrons),
+    }
+    meta = {"format": DENSITY_FORMAT, "species": list(gs.crystal.species),
+            "functional": str(gs.settings.as_dict()["functional"]),
+            "checksum": _checksum(arrays)}
+    buf = io.BytesIO()
+    np.savez_compressed(buf, metadata=np.array(json.dumps(meta)), **arrays)
+    atomic_write_bytes(path, buf.getvalue())
+
+
+def load_density(path) -> dict:
+    """Read a density checkpoint, verifying its format version and checksum.
+
+    Returns a dict with the arrays and ``species``. Raises InputError for a
+    missing, corrupted or foreign file.
+    """
+    src = str(path)
+    try:
+        with np.load(path, allow_pickle=False) as data:
+            arrays = {k: data[k] for k in data.files}
+    except FileNotFoundError:
+        raise InputError("density file not found", source=src) from None
+    except (OSError, ValueError, EOFError) as exc:
+        raise InputError(f"not a readable density file ({exc})", source=src) from None
+    try:
+        meta = json.loads(str(arrays.pop("metadata")))
+    except (KeyError, ValueError):
+        raise InputError("not a pwsolid density file (no metadata)", source=src) from None
+    if meta.get("format") != DENSITY_FORMAT:
+        raise InputError(f"unsupported density format {meta.get('format')!r}; "
+                         f"this version reads {DENSITY_FORMAT}", source=src)
+    if _checksum(arrays) != meta.get("checksum"):
+        raise InputError("the density file is corrupted (checksum mismatch)", source=src)
+    arrays["species"] = meta["species"]
+    arrays["functional"] = meta.get("functional")
+    return arrays
