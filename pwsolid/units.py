@@ -113,9 +113,10 @@ def parse_quantity(text, kind: str, *, key: str | None = None,
     if unit not in units:
         raise InputError(f"unknown {kind} unit '{m.group(2)}'; accepted: {_PRETTY[kind]}",
                          key=key, value=text, source=source)
-    if not math.isfinite(number):
+    value = number * units[unit]
+    if not (math.isfinite(number) and math.isfinite(value)):
         raise InputError("the number is not finite", key=key, value=text, source=source)
-    return number * units[unit]
+    return value
 
 
 def _example(kind: str) -> str:

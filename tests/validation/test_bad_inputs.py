@@ -1,0 +1,236 @@
+"""Every kind of bad input gives one clear InputError naming the file, the key and the fix.
+
+Table-driven: each case is a small TOML text written to a file and read with
+``load_input``; the message must contain the file name, the dotted key and the
+expected fragment (what is wrong or what is accepted).
+"""
+
+import pytest
+
+from pwsolid.config import load_input
+from pwsolid.errors import InputError
+
+CRYSTAL = '[crystal]\nprototype = "diamond"\nlattice_constant = "5.43 angstrom"\nspecies = ["Si"]\n'
+EXPLICIT = ('[crystal]\nprototype = "explicit"\nlattice_constant = "5.43 angstrom"\n'
+            'lattice_vectors = [[0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0]]\n')
+ATOMS_OK = 'atoms = [{ species = "Si", position = [0, 0, 0] }]\n'
+
+
+def proto(name: str, species: str = '["Si"]', a: str = '"5.43 angstrom"', extra: str = "") -> str:
+    return f'[crystal]\nprototype = "{name}"\nlattice_constant = {a}\nspecies = {species}\n{extra}'
+
+
+# (case id, TOML text, dotted key named in the message, expected message fragment)
+CASES = [
+    # unknown names, with near-miss suggestions
+    ("misspelt key", CRYSTAL + '[basis]\ncutof = "15 Ha"\n', "basis.cutof",
+     "did you mean 'basis.cutoff'?"),
+    ("misspelt section", CRYSTAL + '[basi]\ncutoff = "15 Ha"\n', "basi", "did you mean 'basis'?"),
+    ("key at top level", 'cutoff = "15 Ha"\n' + CRYSTAL, "cutoff", "did you mean 'basis.cutoff'?"),
+    ("key in wrong section", CRYSTAL + '[basis]\nmesh = [4, 4, 4]\n', "basis.mesh",
+     "did you mean 'brillouin_zone.mesh'?"),
+    ("unrelated key", CRYSTAL + '[basis]\ncolour = "blue"\n', "basis.colour",
+     "valid keys of [basis]: cutoff, fft_grid"),
+    ("unknown prototype", proto("diamant"), "crystal.prototype", "did you mean 'diamond'?"),
+    ("unknown prototype lists all", proto("wurtzite"), "crystal.prototype",
+     "valid prototypes: simple-cubic, bcc, fcc, diamond"),
+    ("unknown atom key", EXPLICIT + 'atoms = [{ species = "Si", positon = [0, 0, 0] }]\n',
+     "crystal.atoms[1].positon", "did you mean 'position'?"),
+    # missing required entries
+    ("no crystal section", '[basis]\ncutoff = "15 Ha"\n', "crystal", "missing required section"),
+    ("no lattice constant", '[crystal]\nprototype = "fcc"\nspecies = "Al"\n',
+     "crystal.lattice_constant", "missing required key"),
+    ("no prototype", '[crystal]\nlattice_constant = "4.05 angstrom"\nspecies = "Al"\n',
+     "crystal.prototype", "missing required key"),
+    ("no species", '[crystal]\nprototype = "fcc"\nlattice_constant = "4.05 angstrom"\n',
+     "crystal.species", "missing required key"),
+    ("no atoms for explicit", EXPLICIT, "crystal.atoms", "missing required key"),
+    ("atom without position", EXPLICIT + 'atoms = [{ species = "Si" }]\n',
+     "crystal.atoms[1].position", "missing 'position'"),
+    # wrong TOML types
+    ("number for energy", CRYSTAL + "[basis]\ncutoff = 15\n", "basis.cutoff", '"15 Ha"'),
+    ("number for length", proto("fcc", a="4.05"), "crystal.lattice_constant", '"4.05 bohr"'),
+    ("number for tolerance", CRYSTAL + "[self_consistency]\nenergy_tolerance = 1e-8\n",
+     "self_consistency.energy_tolerance", '"1e-08 Ha"'),
+    ("float for integer", CRYSTAL + "[self_consistency]\nmax_iterations = 40.0\n",
+     "self_consistency.max_iterations", "TOML integer, no decimal point); write 40"),
+    ("boolean for integer", CRYSTAL + "[self_consistency]\nempty_bands = true\n",
+     "self_consistency.empty_bands", "must be an integer"),
+    ("float in mesh", CRYSTAL + "[brillouin_zone]\nmesh = [4.0, 4, 4]\n", "brillouin_zone.mesh",
+     "a list of 3 integers"),
+    ("boolean in mesh", CRYSTAL + "[brillouin_zone]\nmesh = [true, 4, 4]\n",
+     "brillouin_zone.mesh", "TOML integer"),
+    ("string for boolean", CRYSTAL + '[brillouin_zone]\nuse_symmetry = "yes"\n',
+     "brillouin_zone.use_symmetry", "TOML boolean: true or false"),
+    ("integer for boolean", CRYSTAL + "[brillouin_zone]\nuse_symmetry = 1\n",
+     "brillouin_zone.use_symmetry", "TOML boolean"),
+    ("quoted number", CRYSTAL + '[self_consistency]\nmixing_weight = "0.6"\n',
+     "self_consistency.mixing_weight", "without quotes"),
+    ("quoted c/a", proto("hcp", '"Ti"', extra='c_over_a = "1.6"\n'), "crystal.c_over_a",
+     "without quotes"),
+    ("non-finite number", CRYSTAL + "[self_consistency]\ndensity_tolerance = nan\n",
+     "self_consistency.density_tolerance", "finite"),
+    ("section not a table", "basis = 5\n" + CRYSTAL, "basis", "must be a table"),
+    ("section name inside a section", CRYSTAL + "basis = 5\n", "crystal.basis",
+     "'basis' is a section"),
+    ("title not text", 'title = 5\n' + CRYSTAL, "title", "must be a string"),
+    ("functional not text", CRYSTAL + "[exchange_correlation]\nfunctional = 3\n",
+     "exchange_correlation.functional", "name string"),
+    ("output not text", CRYSTAL + "[output]\nresult_file = 5\n", "output.result_file",
+     "file name string"),
+    ("fft grid of two", CRYSTAL + "[basis]\nfft_grid = [24, 24]\n", "basis.fft_grid",
+     "a list of 3 integers"),
+    # units
+    ("unknown energy unit", CRYSTAL + '[basis]\ncutoff = "15 Hz"\n', "basis.cutoff",
+     "unknown energy unit 'Hz'"),
+    ("energy unit for a length", proto("fcc", a='"4.05 eV"'), "crystal.lattice_constant",
+     "unknown length unit 'eV'"),
+    ("unit missing", CRYSTAL + '[basis]\ncutoff = "15"\n', "basis.cutoff", "cannot read"),
+    # unphysical values (ranges from GroundStateSettings and Crystal)
+    ("cutoff too small", CRYSTAL + '[basis]\ncutoff = "0.1 Ha"\n', "basis.cutoff",
+     "between 0.5 Ha and 5000 Ha"),
+    ("zero iterations", CRYSTAL + "[self_consistency]\nmax_iterations = 0\n",
+     "self_consistency.max_iterations", "between 1 and 100000"),
+    ("negative empty bands", CRYSTAL + "[self_consistency]\nempty_bands = -1\n",
+     "self_consistency.empty_bands", "between 0 and 10000"),
+    ("mixing weight above one", CRYSTAL + "[self_consistency]\nmixing_weight = 1.5\n",
+     "self_consistency.mixing_weight", "(0, 1]"),
+    ("odd shift", CRYSTAL + "[brillouin_zone]\nshift = [0.25, 0, 0]\n", "brillouin_zone.shift",
+     "each 0 (through Gamma) or 0.5"),
+    ("zero mesh", CRYSTAL + "[brillouin_zone]\nmesh = [0, 4, 4]\n", "brillouin_zone.mesh",
+     "between 1 and 200"),
+    ("negative lattice constant", proto("fcc", '"Al"', a='"-4.05 angstrom"'),
+     "crystal.lattice_constant", "positive length"),
+    ("huge lattice constant", proto("fcc", '"Al"', a='"1e5 bohr"'), "crystal.lattice_constant",
+     "between 0.5 and 1000.0 bohr"),
+    ("negative c/a", proto("hcp", '"Ti"', extra="c_over_a = -1.6\n"), "crystal.c_over_a",
+     "positive length"),
+    # species and prototypes
+    ("one species for zincblende", proto("zincblende", '["Ga"]'), "crystal.species",
+     "prototype 'zincblende' takes 2 species (1 given)"),
+    ("two species for diamond", proto("diamond", '["Si", "Ge"]'), "crystal.species",
+     "prototype 'diamond' takes 1 species (2 given)"),
+    ("unknown element", proto("fcc", '"Xx"'), "crystal.species", "unknown species 'Xx'"),
+    ("lower-case element", proto("fcc", '"al"'), "crystal.species", "did you mean 'Al'?"),
+    ("number as species", proto("fcc", "[13]"), "crystal.species", "element symbols as strings"),
+    ("c/a for fcc", proto("fcc", '"Al"', extra="c_over_a = 1.6\n"), "crystal.c_over_a",
+     "only used with prototype 'hcp'"),
+    ("species for explicit", EXPLICIT + ATOMS_OK + 'species = "Si"\n', "crystal.species",
+     "not used with prototype 'explicit'"),
+    ("vectors for a prototype", CRYSTAL + "lattice_vectors = [[1, 0, 0], [0, 1, 0], [0, 0, 1]]\n",
+     "crystal.lattice_vectors", "use prototype = \"explicit\""),
+    # lattice vectors and atoms
+    ("two lattice vectors", EXPLICIT.replace(", [0.5, 0.5, 0]]", "]") + ATOMS_OK,
+     "crystal.lattice_vectors", "three rows of three numbers"),
+    ("short lattice vector", EXPLICIT.replace("[0.5, 0.5, 0]]", "[0.5, 0.5]]") + ATOMS_OK,
+     "crystal.lattice_vectors", "three rows of three numbers"),
+    ("singular cell", EXPLICIT.replace("[0.5, 0.5, 0]]", "[0.5, 0.5, 1.0]]") + ATOMS_OK,
+     "crystal.lattice_vectors", "linearly dependent"),
+    ("left-handed cell", EXPLICIT.replace("[[0, 0.5, 0.5], [0.5, 0, 0.5]",
+                                          "[[0.5, 0, 0.5], [0, 0.5, 0.5]") + ATOMS_OK,
+     "crystal.lattice_vectors", "left-handed"),
+    ("atom as a bare list", EXPLICIT + "atoms = [[0, 0, 0]]\n", "crystal.atoms[1]",
+     "atom 1 must be a list of tables"),
+    ("no atoms", EXPLICIT + "atoms = []\n", "crystal.atoms", "at least one atom"),
+    ("atom of unknown element", EXPLICIT + 'atoms = [{ species = "Qq", position = [0, 0, 0] }]\n',
+     "crystal.atoms[1].species", "unknown element"),
+    ("atom position of two", EXPLICIT + 'atoms = [{ species = "Si", position = [0, 0] }]\n',
+     "crystal.atoms[1].position", "a list of 3 numbers"),
+    ("atoms on top of each other",
+     EXPLICIT + 'atoms = [{ species = "Si", position = [0, 0, 0] },'
+                ' { species = "Si", position = [0.01, 0, 0] }]\n',
+     "crystal.atoms", "bohr apart"),
+    # supercell
+    ("zero supercell", CRYSTAL + "supercell = [0, 1, 1]\n", "crystal.supercell",
+     "integer from 1 to 20"),
+    ("float supercell", CRYSTAL + "supercell = [2.0, 1, 1]\n", "crystal.supercell",
+     "TOML integer"),
+    ("supercell of two", CRYSTAL + "supercell = [2, 2]\n", "crystal.supercell",
+     "a list of 3 integers"),
+    ("enormous supercell", CRYSTAL + "supercell = [10, 10, 10]\n", "crystal.supercell",
+     "2000 atoms; at most 500"),
+    # pseudopotentials
+    ("missing pseudopotential file", CRYSTAL + '[pseudopotentials]\nSi = "Si-nowhere.toml"\n',
+     "pseudopotentials.Si", "bundled files for Si: Si-alpha.toml, Si-beta.toml"),
+    ("pseudopotential for absent element", CRYSTAL + '[pseudopotentials]\nGe = "Si-test.toml"\n',
+     "pseudopotentials.Ge", "not in the crystal"),
+    ("pseudopotential not a name", CRYSTAL + "[pseudopotentials]\nSi = 14\n",
+     "pseudopotentials.Si", "file name string"),
+]
+
+
+@pytest.fixture
+def pseudo_setup(tmp_path, monkeypatch):
+    (tmp_path / "Si-test.toml").write_text("# dummy\n")
+    bundled = tmp_path / "bundled"
+    bundled.mkdir()
+    for name in ("Si-alpha.toml", "Si-beta.toml", "Ge-alpha.toml"):
+        (bundled / name).write_text("# dummy\n")
+    monkeypatch.setenv("PWSOLID_PSEUDO_DIR", str(bundled))
+    return tmp_path
+
+
+def test_there_are_enough_cases():
+    assert len(CASES) >= 30
+    assert len({case[0] for case in CASES}) == len(CASES)
+
+
+@pytest.mark.parametrize("text, key, fragment", [c[1:] for c in CASES], ids=[c[0] for c in CASES])
+def test_bad_input_is_reported_clearly(pseudo_setup, text, key, fragment):
+    path = pseudo_setup / "coating-trial.toml"
+    path.write_text(text)
+    with pytest.raises(InputError) as err:
+        load_input(path)
+    message = str(err.value)
+    assert fragment in message
+    assert str(path) in message
+    assert f"'{key}'" in message
+    assert err.value.source == str(path)
+
+
+def test_missing_pseudopotential_names_the_places_searched(pseudo_setup):
+    path = pseudo_setup / "coating-trial.toml"
+    path.write_text(CRYSTAL + '[pseudopotentials]\nSi = "Si-nowhere.toml"\n')
+    with pytest.raises(InputError) as err:
+        load_input(path)
+    message = str(err.value)
+    assert str(pseudo_setup / "Si-nowhere.toml") in message
+    assert str(pseudo_setup / "bundled" / "Si-nowhere.toml") in message
+    assert "Ge-alpha" not in message
+    assert "'Si-nowhere.toml'" in message          # the value as written
+
+
+def test_missing_file(tmp_path):
+    path = tmp_path / "no-such-film.toml"
+    with pytest.raises(InputError, match="input file not found") as err:
+        load_input(path)
+    assert str(path) in str(err.value)
+
+
+def test_directory_instead_of_file(tmp_path):
+    with pytest.raises(InputError, match="is a directory") as err:
+        load_input(tmp_path)
+    assert str(tmp_path) in str(err.value)
+
+
+def test_not_utf8(tmp_path):
+    path = tmp_path / "latin1.toml"
+    path.write_bytes('title = "Schicht f\u00fcr Glas"\n'.encode("latin-1"))
+    with pytest.raises(InputError, match="not UTF-8") as err:
+        load_input(path)
+    assert str(path) in str(err.value)
+
+
+@pytest.mark.parametrize("text, where", [
+    ('[crystal]\nprototype = "fcc"\nlattice_constant = 4.05 angstrom\n', "line 3"),
+    ('[crystal]\nprototype = "fcc"\n[crystal]\n', "line 3"),
+    ('title = "unterminated\n', "line 1"),
+])
+def test_invalid_toml_reports_line_and_column(tmp_path, text, where):
+    path = tmp_path / "broken.toml"
+    path.write_text(text)
+    with pytest.raises(InputError) as err:
+        load_input(path)
+    message = str(err.value)
+    assert "invalid TOML" in message and where in message and "column" in message
+    assert str(path) in message
