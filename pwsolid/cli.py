@@ -87,8 +87,11 @@ def _ground_state(args) -> int:
     if not args.input:
         print(f"No input file given: running the bundled demo {path.name}")
     run = load_input(path)
-    result_file = Path(args.result_file) if args.result_file else run.result_file
-    density_file = Path(args.density_file) if args.density_file else run.density_file
+    result_file, density_file = run.result_file, run.density_file
+    if not args.input:   # never write into the installed package: use the working directory
+        result_file, density_file = Path(result_file.name), Path(density_file.name)
+    result_file = Path(args.result_file) if args.result_file else result_file
+    density_file = Path(args.density_file) if args.density_file else density_file
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
     c = run.crystal
     say(f"{run.title or path.name}")
@@ -143,12 +146,9 @@ def _check_input(args) -> int:
 
 
 def _input_keys(args) -> int:
-    from .config import schema_table
+    from .config import schema_text
 
-    rows = schema_table()
-    for row in rows:
-        print(f"{row['key']:<36} {row['type']:<10} {str(row.get('default', '')):<18} "
-              f"{row['description']}")
+    print(schema_text())
     return EXIT_OK
 
 
