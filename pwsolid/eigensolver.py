@@ -77,6 +77,12 @@ def dense_lowest_eigenpairs(matrix: np.ndarray, n: int) -> tuple[np.ndarray, np.
     return w, np.ascontiguousarray(v.T)
 
 
+def _checked(block: np.ndarray) -> np.ndarray:
+    if not np.all(np.isfinite(block)):
+        raise FloatingPointError("the operator returned non-finite values in the eigensolver")
+    return block
+
+
 def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.ndarray, *,
              tolerance: float = 1e-6, max_iterations: int = 100, n_converge: int | None = None,
              max_subspace_factor: int = 3) -> DavidsonResult:
@@ -116,7 +122,7 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
     v = orthonormalize(np.ascontiguousarray(guess, dtype=complex))
     if v.shape[0] < n:
         raise np.linalg.LinAlgError("starting vectors are linearly dependent")
-    hv = apply_h(v)
+    hv = _checked(apply_h(v))
     n_apply = v.shape[0]
     t0 = time.perf_counter()
     h_sub = v.conj() @ hv.T
@@ -150,7 +156,7 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
         t = orthonormalize(t)
         if t.shape[0] == 0:
             break
-        ht = apply_h(t)
+        ht = _checked(apply_h(t))
         n_apply += t.shape[0]
         t0 = time.perf_counter()
         off = v.conj() @ ht.T

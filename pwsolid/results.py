@@ -193,8 +193,9 @@ def load_density(path) -> dict:
             arrays = {k: data[k] for k in data.files}
     except FileNotFoundError:
         raise InputError("density file not found", source=src) from None
-    except (OSError, ValueError, EOFError) as exc:
-        raise InputError(f"not a readable density file ({exc})", source=src) from None
+    except Exception as exc:  # noqa: BLE001 - zip, format and OS errors all mean 'unreadable'
+        raise InputError(f"not a readable density file ({type(exc).__name__}: {exc})",
+                         source=src) from None
     try:
         meta = json.loads(str(arrays.pop("metadata")))
     except (KeyError, ValueError):
