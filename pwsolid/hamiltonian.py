@@ -104,10 +104,9 @@ class KPointHamiltonian:
 
     def apply(self, block: np.ndarray) -> np.ndarray:
         """H applied to rows of ``block`` (nb, n_pw) -> (nb, n_pw)."""
-        psi_r = self.fft.to_real(self.basis.scatter(block))
-        psi_r *= self.potential[None]
-        vpsi = self.basis.gather(self.fft.to_reciprocal(psi_r))
-        return vpsi + self.basis.kinetic[None, :] * block
+        vpsi = self.fft.apply_potential(block, self.basis.grid_index, self.potential)
+        vpsi += self.basis.kinetic[None, :] * block
+        return vpsi
 
     def dense_matrix(self) -> np.ndarray:
         """Explicit H_{GG'} = |k+G|^2/2 delta + V(G - G') (tests and tiny bases only)."""

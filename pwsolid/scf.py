@@ -216,8 +216,7 @@ def _density(setup: SystemSetup, wavefunctions, occupations) -> np.ndarray:
     n = np.zeros(setup.grid_shape)
     for basis, c, f, w in zip(setup.bases, wavefunctions, occupations, setup.kpoints.weights):
         sel = f > 0
-        psi = setup.fft.to_real(basis.scatter(c[sel]))
-        n += w * np.einsum("b,bxyz->xyz", f[sel], (psi.conj() * psi).real)
+        setup.fft.accumulate_density(c[sel], basis.grid_index, w * f[sel], n)
     n /= setup.volume
     if setup.symmetrize is not None:
         n = setup.symmetrize(n)
