@@ -1,19 +1,99 @@
-"""Density mixing: Pulay (DIIS) extrapolation of SCF residuals (layer 1).
+"""Density mixing: Pulay (DIIS) extrapolation of SCF residuals, Kerker filter (layer 1).
 
 The mixer sees flat real vectors only: the input density of an SCF step and
 the output density computed from its potential. An optional preconditioner acts
-on residuals (a Kerker filter, for instance) and an optional metric weights the
-inner product used to minimise the residual.
+on residuals (a Kerker filter from :func:`kerker_preconditioner`, for instance)
+and an optional metric weights the inner product used to minimise the residual.
 """
 
 from __future__ import annotations
 
+import math
 from collections import deque
 from typing import Callable
 
 import numpy as np
 
-__all__ = ["PulayMixer", "LinearMixer"]
+__all__ = ["PulayMixer", "LinearMixer", "kerker_preconditioner", "thomas_fermi_wavevector"]
+
+
+def thomas_fermi_wavevector(mean_density: float) -> float:
+    """Thomas-Fermi screening wave vector (1/bohr) of a uniform gas of density n (1/bohr^3).
+
+    Notes
+    -----
+    k_TF^2 = 4 pi dn/dmu = 4 pi g(E_F) with g(E_F) = k_F / pi^2 (both spins,
+    Hartree units) and k_F = (3 pi^2 n)^(1/3), so
+
+        k_TF^2 = 4 k_F / pi = 4 (3 n / pi)^(1/3),
+
+    i.e. k_TF / k_F = 0.815 sqrt(r_s). Used as the automatic screening wave
+    vector of the Kerker filter: it is the screening length of the valence
+    electrons treated as a free-electron gas of the mean density.
+
+    References
+    ----------
+    N. W. Ashcroft and N. D. Mermin, Solid State Physics (1976), ch. 17,
+    Eqs. (17.50)-(17.55) (from memory).
+    """
+    n = float(mean_density)
+    if not (math.isfinite(n) and n > 0.0):
+        raise ValueError(f"the mean density must be positive (got {mean_density!r})")
+    return math.sqrt(4.0 * (3.0 * n / math.pi) ** (1.0 / 3.0))
+
+
+def kerker_preconditioner(g2: np.ndarray, screening_wavevector: float) -> Callable[[np.ndarray], np.ndarray]:
+    """Kerker filter on density residuals given on a real-space grid.
+
+    Parameters
+    ----------
+    g2 : (n1, n2, n3) float, 1/bohr^2
+        |G|^2 of every grid point in numpy FFT order (G = 0 at index (0, 0, 0)).
+    screening_wavevector : float, 1/bohr
+        q0 > 0, e.g. :func:`thomas_fermi_wavevector` of the mean valence density.
+
+    Returns
+    -------
+    callable
+        ``P(r)`` for a flat real residual of ``n1 * n2 * n3`` values (or one of
+        the grid shape); returns a real array of the same shape.
+
+    Notes
+    -----
+    In reciprocal space ``P r(G) = G^2 / (G^2 + q0^2) r(G)``. Long-wavelength
+    components, which drive charge sloshing in metals and large cells because
+    the Hartree response grows as 4 pi / G^2, are damped; short-wavelength ones
+    pass nearly unchanged. The factor is 0 at G = 0: the filtered residual has
+    zero mean, so a mixed density ``x_in + w P r`` keeps the electron count of
+    the input density (and a Pulay combination of inputs with coefficients
+    summing to 1 keeps it too). |G|^2 is even in G, so the filter maps real
+    residuals to real ones and the imaginary part left by rounding is dropped;
+    on the Nyquist planes of an even grid, where the stored -G/2 has no +G/2
+    partner, taking the real part applies the mean of the two factors.
+
+    References
+    ----------
+    G. P. Kerker, Phys. Rev. B 23, 3082 (1981).
+    """
+    g2 = np.asarray(g2, float)
+    q0 = float(screening_wavevector)
+    if g2.ndim != 3:
+        raise ValueError(f"g2 must be a 3-d grid, got shape {g2.shape}")
+    if not (math.isfinite(q0) and q0 > 0.0):
+        raise ValueError(f"the screening wave vector must be positive (got {screening_wavevector!r})")
+    factor = g2 / (g2 + q0 * q0)
+    factor[0, 0, 0] = 0.0
+    shape = g2.shape
+    size = g2.size
+
+    def precondition(residual: np.ndarray) -> np.ndarray:
+        r = np.asarray(residual, float)
+        if r.size != size:
+            raise ValueError(f"residual of {r.size} values for a grid of {size} points")
+        out = np.fft.ifftn(np.fft.fftn(r.reshape(shape)) * factor)
+        return np.ascontiguousarray(out.real).reshape(r.shape)
+
+    return precondition
 
 
 class LinearMixer:
@@ -70,25 +150,55 @@ class PulayMixer:
         self._inputs.clear()
         self._residuals.clear()
 
+    def _coefficients(self, res: np.ndarray) -> np.ndarray:
+        """Pulay coefficients (summing to 1) for residuals res (m, n), newest last.
+
+        Written as c = e_last + (gamma, -sum gamma) so the constraint holds
+        exactly, the unconstrained least-squares problem
+        min || R_last + sum_j gamma_j (R_j - R_last) || is solved with columns
+        scaled to unit norm and an SVD cut-off (singular values below 1e-10 of
+        the largest dropped). Unlike the normal equations of the bordered
+        system, this does not square the condition number, so the mixer keeps
+        converging when the newest residual is 1e-10 of the oldest.
+        """
+        m = len(res)
+        c = np.zeros(m)
+        c[-1] = 1.0
+        if m == 1:
+            return c
+        last = res[-1]
+        diff = res[:-1] - last                       # (m - 1, n)
+        if self.metric is not None:
+            # <u, M v> = u . (M v) for a symmetric positive metric: solve the
+            # (column-scaled) normal equations by a cut-off eigen-decomposition.
+            m_diff = np.array([self.metric(v) for v in diff])
+            gram = 0.5 * (diff @ m_diff.T + m_diff @ diff.T)
+            rhs = -(m_diff @ last)
+            scale = np.sqrt(np.clip(np.diag(gram), 0.0, None))
+            scale[scale == 0.0] = 1.0
+            vals, vecs = np.linalg.eigh(gram / np.outer(scale, scale))
+            keep = vals > 1e-14 * max(vals.max(), 0.0)
+            if not np.any(keep):
+                return c
+            proj = vecs[:, keep].T @ (rhs / scale)
+            gamma = (vecs[:, keep] @ (proj / vals[keep])) / scale
+        else:
+            norms = np.linalg.norm(diff, axis=1)
+            norms[norms == 0.0] = 1.0
+            gamma, *_ = np.linalg.lstsq((diff / norms[:, None]).T, -last, rcond=1e-10)
+            gamma = gamma / norms
+        if not np.all(np.isfinite(gamma)):
+            return c
+        c[:-1] = gamma
+        c[-1] = 1.0 - gamma.sum()
+        return c
+
     def mix(self, x_in: np.ndarray, x_out: np.ndarray) -> np.ndarray:
         """Return the next input vector from this step's input and output."""
         self._inputs.append(np.array(x_in, dtype=float, copy=True))
         self._residuals.append(np.asarray(x_out, dtype=float) - x_in)
         res = np.array(self._residuals)
-        weighted = res if self.metric is None else np.array([self.metric(r) for r in res])
-        a = res @ weighted.T
-        m = len(res)
-        scale = np.max(np.abs(np.diag(a))) or 1.0
-        a = a + 1e-12 * scale * np.eye(m)      # keeps nearly dependent histories solvable
-        try:
-            c = np.linalg.solve(a, np.ones(m))
-            c /= c.sum()
-        except np.linalg.LinAlgError:
-            c = np.zeros(m)
-            c[-1] = 1.0
-        if not np.all(np.isfinite(c)):
-            c = np.zeros(m)
-            c[-1] = 1.0
+        c = self._coefficients(res)
         x_opt = c @ np.array(self._inputs)
         r_opt = c @ res
         if self.preconditioner is not None:
