@@ -132,6 +132,11 @@ class PulayMixer:
     With residuals R_i = x_out,i - x_in,i, the coefficients c minimise
     ||sum_i c_i R_i|| subject to sum_i c_i = 1; then
     x_next = sum_i c_i x_in,i + weight * P(sum_i c_i R_i).
+    The constrained minimisation is solved as a least-squares problem in
+    residual differences (see ``_coefficients``), which stays accurate when the
+    residuals span many orders of magnitude. With a Kerker preconditioner the
+    mixed density keeps the electron count of the inputs (the filter removes the
+    mean of the residual and the coefficients sum to 1).
 
     References
     ----------

@@ -280,9 +280,13 @@ class MethfesselPaxton(_SchemeBase):
     name: ClassVar[str] = "methfessel-paxton"
 
     def __post_init__(self):
-        if isinstance(self.order, bool) or int(self.order) != self.order or not 0 <= self.order <= 30:
+        order = self.order
+        integral = (isinstance(order, (int, np.integer)) and not isinstance(order, bool)) or (
+            isinstance(order, float) and order.is_integer())
+        if not (integral and 0 <= order <= 30):
             raise InputError("the Methfessel-Paxton order must be an integer from 0 to 30",
-                             key="occupations.order", value=self.order)
+                             key="occupations.order", value=order)
+        object.__setattr__(self, "order", int(order))
 
     @property
     def monotone(self) -> bool:
@@ -429,6 +433,7 @@ def _check_bands(eigenvalues, weights, n_electrons):
     if not 0.0 < n <= capacity * (1 + 1e-12):
         raise ValueError(f"{n:g} electrons per cell do not fit in {eig.shape[1]} bands "
                          "(need 0 < electrons <= 2 * bands)")
+    n = min(n, capacity)      # a count above capacity by rounding only: all bands full
     if not np.all(np.isfinite(eig)):
         raise ValueError("eigenvalues must be finite")
     return eig, w, n
