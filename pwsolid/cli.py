@@ -43,7 +43,24 @@ def build_parser() -> argparse.ArgumentParser:
 
     sub.add_parser("input-keys", help="list every input key with its type, unit and default")
     sub.add_parser("list-pseudopotentials", help="list the bundled pseudopotential files")
+    for module in _command_modules():
+        module.register(sub)
     return parser
+
+
+def _command_modules():
+    """Modules of ``pwsolid.commands`` that add sub-commands (each has ``register``)."""
+    import importlib
+    import pkgutil
+
+    from . import commands
+
+    found = []
+    for info in sorted(pkgutil.iter_modules(commands.__path__), key=lambda m: m.name):
+        module = importlib.import_module(f"{commands.__name__}.{info.name}")
+        if hasattr(module, "register"):
+            found.append(module)
+    return found
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -59,7 +76,8 @@ def main(argv: list[str] | None = None) -> int:
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ConvergenceWarning)
-            return _COMMANDS[args.command](args)
+            handler = getattr(args, "handler", None) or _COMMANDS[args.command]
+            return handler(args)
     except InputError as exc:
         print(f"pwsolid: invalid input: {exc}", file=sys.stderr)
         return EXIT_INVALID_INPUT

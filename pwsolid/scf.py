@@ -34,7 +34,7 @@ from .settings import GroundStateSettings
 from .symmetry import SymmetryOperations, find_symmetry, identity_only, make_density_symmetrizer
 
 __all__ = ["SystemSetup", "SCFState", "GroundState", "prepare", "scf_step", "ground_state",
-           "load_pseudopotentials"]
+           "load_pseudopotentials", "effective_potential", "bands_at_kpoints"]
 
 Log = Callable[[str], None]
 
@@ -135,6 +135,56 @@ class SCFState:
     iteration: int = 0
     applications: int = 0               # single-vector H applications so far
     history: list = field(default_factory=list)
+
+
+def effective_potential(setup: SystemSetup, density: np.ndarray) -> np.ndarray:
+    """V_eff(r) = V_loc + V_H[n] + V_xc[n] on the FFT grid (Ha), for a density on the grid."""
+    return _effective_potential(setup, np.asarray(density, float))
+
+
+def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional,
+                     n_bands: int, *, tolerance: float = 1e-6,
+                     progress: Callable[[int, int], None] | None = None) -> np.ndarray:
+    """Non-self-consistent eigenvalues (Ha) at arbitrary k-points for a fixed density.
+
+    Parameters
+    ----------
+    setup
+        From :func:`prepare` (gives the cutoff, FFT grid, potentials).
+    density
+        Density on ``setup.grid_shape`` (usually the self-consistent one).
+    kpoints_fractional : (n_k, 3)
+        k in units of the reciprocal vectors.
+    n_bands
+        Bands per k-point.
+    progress
+        Called as ``progress(done, total)`` after each k-point.
+
+    Returns
+    -------
+    ndarray (n_k, n_bands)
+        Eigenvalues in Ha. Each k-point starts from a dense diagonalisation in
+        its slowest plane waves, then Davidson converges it to ``tolerance``.
+    """
+    with single_threaded_blas():
+        v_eff = _effective_potential(setup, np.asarray(density, float))
+        v_eff_g = setup.fft.field_to_reciprocal(v_eff)
+        kpts = np.atleast_2d(np.asarray(kpoints_fractional, float))
+        out = np.empty((len(kpts), n_bands))
+        s = setup.settings
+        for ik, k in enumerate(kpts):
+            basis = make_basis(setup.crystal.lattice, k, s.cutoff, setup.grid_shape)
+            if basis.size < n_bands:
+                raise InputError(f"{n_bands} bands need more plane waves than the {basis.size} "
+                                 "of this cutoff", key="basis.cutoff", value=s.cutoff)
+            guess = _initial_guess(basis, v_eff_g, n_bands, setup.grid_shape)
+            ham = KPointHamiltonian(basis, setup.fft, v_eff)
+            res = davidson(ham.apply, kinetic_preconditioner(basis.kinetic), guess,
+                           tolerance=tolerance, max_iterations=200)
+            out[ik] = res.eigenvalues
+            if progress is not None:
+                progress(ik + 1, len(kpts))
+    return out
 
 
 def _effective_potential(setup: SystemSetup, density: np.ndarray):

@@ -13,7 +13,7 @@ LAYERS = {
     3: {"pseudo", "electrostatics", "hamiltonian", "energies"},
     4: {"scf", "parallel", "settings"},
     5: {"workflows"},
-    6: {"config", "results", "plots", "cli"},
+    6: {"config", "results", "plots", "cli", "commands"},
 }
 LAYER_OF = {name: layer for layer, names in LAYERS.items() for name in names}
 
