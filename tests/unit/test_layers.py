@@ -7,7 +7,7 @@ import pwsolid
 
 PACKAGE = Path(pwsolid.__file__).parent
 LAYERS = {
-    0: {"units", "errors", "resources", "_version"},
+    0: {"units", "errors", "resources", "_version", "progress"},
     1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos"},
     2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath"},
     3: {"pseudo", "electrostatics", "hamiltonian", "energies"},
