@@ -135,10 +135,17 @@ def _summary(doc: dict) -> str:
         lines.append(f"  {name.replace('_', ' '):<24}{value:>13.8f}{value * HARTREE_EV:>15.6f}")
     lines.append(f"  {'total':<24}{e['total_Ha']:>13.8f}{e['total_eV']:>15.6f}")
     b = doc["band_edges"]
+    occ = doc["occupation_scheme"]
     lines.append("")
-    lines.append(f"  highest occupied level   {b['highest_occupied_eV']:.4f} eV "
-                 f"at k = {_k(b['highest_occupied_kpoint'])}")
-    if b["lowest_unoccupied_eV"] is not None:
+    if b is None:
+        lines.append(f"  free energy F = E - sigma S{e['free_energy_Ha']:.8f} Ha")
+        lines.append(f"  zero-width estimate        {e['zero_width_estimate_Ha']:.8f} Ha")
+        lines.append(f"  Fermi level                {occ['fermi_level_eV']:.4f} eV "
+                     f"({occ['scheme']} smearing, width {occ['width_eV']:.3f} eV)")
+    else:
+        lines.append(f"  highest occupied level   {b['highest_occupied_eV']:.4f} eV "
+                     f"at k = {_k(b['highest_occupied_kpoint'])}")
+    if b is not None and b["lowest_unoccupied_eV"] is not None:
         lines.append(f"  lowest unoccupied level  {b['lowest_unoccupied_eV']:.4f} eV "
                      f"at k = {_k(b['lowest_unoccupied_kpoint'])}")
         lines.append(f"  band gap on the mesh     {b['gap_eV']:.4f} eV ({b['gap_kind']})")

@@ -43,7 +43,7 @@ _C_OVER_A_MAX = 50.0
 _VECTOR_ENTRY_MAX = 100.0
 _SUPERCELL_MAX = 20
 _MAX_ATOMS = 500
-_DEFAULT_UNIT = {"energy": "Ha", "length": "bohr"}
+_DEFAULT_UNIT = {"energy": "Ha", "length": "bohr", "inverse_length": "bohr^-1"}
 
 
 @dataclass(frozen=True)
@@ -88,7 +88,8 @@ _KIND_TEXT = {
     "atoms": "list of {species, position}",
 }
 
-_SETTINGS_SECTIONS = ("basis", "brillouin_zone", "exchange_correlation", "self_consistency")
+_SETTINGS_SECTIONS = ("basis", "brillouin_zone", "exchange_correlation", "occupations",
+                      "self_consistency")
 _SETTINGS_DESCRIPTIONS = {
     "cutoff": ("quantity", "energy", "plane-wave kinetic-energy cutoff |k+G|^2/2"),
     "fft_grid": ("grid", "", "force this FFT grid instead of the automatic choice"),
@@ -101,7 +102,15 @@ _SETTINGS_DESCRIPTIONS = {
     "density_tolerance": ("number", "", "...and integral |n_out - n_in| / N_electrons is below this"),
     "mixing_weight": ("number", "", "fraction of the residual added per Pulay step, in (0, 1]"),
     "mixing_history": ("integer", "", "previous densities kept by the Pulay mixer"),
-    "empty_bands": ("integer", "", "unoccupied bands computed besides the occupied ones"),
+    "empty_bands": ("integer", "", "bands beyond the occupied ones (automatic: 4, more with "
+                    "smearing)"),
+    "smearing": ("name", "", "none (Aufbau filling) or fermi-dirac, gaussian, methfessel-paxton, "
+                 "cold (for metals)"),
+    "smearing_width": ("quantity", "energy", "smearing width sigma"),
+    "smearing_order": ("integer", "", "order of the Methfessel-Paxton scheme"),
+    "mixing_preconditioner": ("name", "", "auto (Kerker with smearing), kerker or none"),
+    "screening_wavevector": ("quantity", "inverse_length", "Kerker screening wave vector q0 "
+                             "(automatic: Thomas-Fermi of the mean density)"),
 }
 _SETTINGS_DEFAULTS = {f.name: f.default for f in fields(GroundStateSettings)
                       if f.default is not MISSING}
@@ -144,6 +153,8 @@ _TOP_LEVEL = ("title", *_SCHEMA)
 def _format_default(spec: _Key) -> Any:
     """Default of a settings key as it would be written in an input file."""
     value = _SETTINGS_DEFAULTS[spec.field]
+    if value is None:
+        return None
     if spec.kind == "quantity":
         return f"{value:g} {_DEFAULT_UNIT[spec.unit]}"
     return list(value) if isinstance(value, tuple) else value
@@ -566,6 +577,10 @@ class _Reader:
                     echo[section][key] = _format_default(spec)
                     continue
                 value = table[key]
+                if value is None and _SETTINGS_DEFAULTS.get(spec.field, 0) is None:
+                    kwargs[spec.field] = None     # an echo of an automatic choice
+                    echo[section][key] = None
+                    continue
                 if spec.kind == "quantity":
                     parsed = self._quantity(value, dotted, spec.unit)
                 elif spec.kind == "integer":

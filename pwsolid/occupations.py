@@ -84,7 +84,7 @@ def aufbau_occupations(n_kpoints: int, n_bands: int, n_electrons: float) -> np.n
         raise InputError(
             f"{n_electrons:g} valence electrons per cell cannot fill bands completely; "
             "an insulating (Aufbau) filling needs an even electron count per cell "
-            "(use a supercell or a different structure)", key="crystal", value=n_electrons)
+            "(for a metal set occupations.smearing, e.g. \"cold\")", key="crystal", value=n_electrons)
     n_occ = int(round(n_occ))
     if n_occ > n_bands:
         raise ValueError("fewer bands than occupied states")

@@ -51,20 +51,16 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
         "energy": {
             "total_Ha": energies["total_Ha"],
             "total_eV": energies["total_eV"],
-            "per_atom_eV": energies["total_eV"] / gs.crystal.n_atoms,
+            "per_atom_eV": energies["total_eV"] / max(gs.crystal.n_atoms, 1),
+            "free_energy_Ha": gs.free_energy,
+            "free_energy_eV": gs.free_energy * HARTREE_EV,
+            "zero_width_estimate_Ha": gs.zero_width_energy,
+            "zero_width_estimate_eV": gs.zero_width_energy * HARTREE_EV,
             "terms_Ha": energies["terms_Ha"],
             "terms_eV": energies["terms_eV"],
         },
-        "band_edges": {
-            "highest_occupied_eV": _ev(edges.highest_occupied),
-            "lowest_unoccupied_eV": _ev(edges.lowest_unoccupied),
-            "gap_eV": _ev(edges.gap),
-            "gap_kind": None if edges.gap is None else ("direct" if edges.is_direct else "indirect"),
-            "highest_occupied_kpoint": kf[edges.highest_occupied_k].tolist(),
-            "lowest_unoccupied_kpoint": (None if edges.lowest_unoccupied_k is None
-                                         else kf[edges.lowest_unoccupied_k].tolist()),
-            "note": "extrema over the k-points of the mesh only",
-        },
+        "band_edges": _band_edges(gs, kf),
+        "occupation_scheme": _occupation_block(gs),
         "scf": {
             "iterations": gs.iterations,
             "hamiltonian_applications_per_band": gs.applications_per_band,
@@ -107,6 +103,38 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
                   "kpoints": "fractional coordinates of the reciprocal lattice vectors"},
     }
     return doc
+
+
+def _band_edges(gs: GroundState, kf: np.ndarray) -> dict | None:
+    edges = gs.band_edges
+    if edges is None:
+        return None
+    return {
+        "highest_occupied_eV": _ev(edges.highest_occupied),
+        "lowest_unoccupied_eV": _ev(edges.lowest_unoccupied),
+        "gap_eV": _ev(edges.gap),
+        "gap_kind": None if edges.gap is None else ("direct" if edges.is_direct else "indirect"),
+        "highest_occupied_kpoint": kf[edges.highest_occupied_k].tolist(),
+        "lowest_unoccupied_kpoint": (None if edges.lowest_unoccupied_k is None
+                                     else kf[edges.lowest_unoccupied_k].tolist()),
+        "note": "extrema over the k-points of the mesh only",
+    }
+
+
+def _occupation_block(gs: GroundState) -> dict:
+    s = gs.settings
+    if gs.smearing is None:
+        return {"scheme": "fixed (Aufbau)", "fermi_level_eV": None}
+    return {
+        "scheme": s.smearing,
+        "methfessel_paxton_order": s.smearing_order if s.smearing == "methfessel-paxton" else None,
+        "width_Ha": s.smearing_width,
+        "width_eV": s.smearing_width * HARTREE_EV,
+        "fermi_level_Ha": gs.smearing.fermi_level,
+        "fermi_level_eV": gs.smearing.fermi_level * HARTREE_EV,
+        "entropy_term_Ha": gs.smearing.entropy_term,
+        "electron_count": gs.smearing.electron_count,
+    }
 
 
 def atomic_write_bytes(path, data: bytes) -> None:

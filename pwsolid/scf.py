@@ -26,10 +26,12 @@ from .errors import ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, kinetic_preconditioner, local_potential
 from .kpoints import KPointSet, irreducible_kpoints
-from .mixing import PulayMixer
+from .mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
 from .parallel import fft_threads_for, single_threaded_blas
-from .occupations import BandEdges, aufbau_occupations, band_edges
-from .pseudo import Pseudopotential, default_pseudopotential_file, load_pseudopotential
+from .occupations import (TOP_BAND_CHARGE_LIMIT, BandEdges, SmearingResult, aufbau_occupations,
+                          band_edges, highest_band_charge, smeared_occupations, smearing_scheme)
+from .pseudo import (Pseudopotential, default_pseudopotential_file, load_pseudopotential,
+                     resolve_pseudopotential)
 from .settings import GroundStateSettings
 from .symmetry import SymmetryOperations, find_symmetry, identity_only, make_density_symmetrizer
 
@@ -47,13 +49,21 @@ def load_pseudopotentials(species, choices) -> dict[str, Pseudopotential]:
         if isinstance(choice, Pseudopotential):
             pp = choice
         else:
-            path = default_pseudopotential_file(s) if choice is None else Path(choice)
+            path = (default_pseudopotential_file(s) if choice is None
+                    else resolve_pseudopotential(s, choice))
             pp = load_pseudopotential(path)
         if pp.element != s:
             raise InputError(f"the file is for element {pp.element}, not {s}",
                              key=f"pseudopotentials.{s}", value=str(pp.source_file))
         out[s] = pp
     return out
+
+
+def _symmetry_of(crystal: Crystal) -> SymmetryOperations:
+    """Space group of the crystal; a cell without atoms (jellium) has its lattice's symmetry."""
+    if crystal.n_atoms:
+        return find_symmetry(crystal)
+    return find_symmetry(Crystal(crystal.lattice, ("H",), [[0.0, 0.0, 0.0]]))
 
 
 @dataclass(frozen=True, eq=False)
@@ -87,8 +97,11 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None) -> Sy
     settings = settings or GroundStateSettings()
     pps = load_pseudopotentials(crystal.species, settings.pseudopotentials)
     functional = _xc.get_functional(settings.functional)
-    n_el = float(sum(pps[s].valence for s in crystal.species))
-    symmetry = find_symmetry(crystal) if settings.use_symmetry else identity_only()
+    n_el = float(sum(pps[s].valence for s in crystal.species)) + settings.background_electrons
+    if n_el <= 0:
+        raise InputError("the cell holds no electrons: add atoms or background electrons",
+                         key="crystal", value=n_el)
+    symmetry = _symmetry_of(crystal) if settings.use_symmetry else identity_only()
     kpts = irreducible_kpoints(settings.kpoint_mesh, settings.kpoint_shift,
                                symmetry if settings.use_symmetry else None,
                                time_reversal=settings.use_symmetry)
@@ -99,7 +112,10 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None) -> Sy
         raise InputError(f"{exc}; use a larger grid or remove the setting",
                          key="basis.fft_grid", value=list(grid)) from None
     n_occ = int(np.ceil(n_el / 2 - 1e-8))
-    n_bands = n_occ + settings.empty_bands
+    empty = settings.empty_bands
+    if empty is None:
+        empty = 4 if settings.smearing == "none" else 4 + int(np.ceil(0.2 * n_occ))
+    n_bands = n_occ + empty
     smallest = min(b.size for b in bases)
     if n_bands > smallest:
         raise InputError(f"{n_bands} bands need at least as many plane waves, but a k-point has "
@@ -111,8 +127,8 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None) -> Sy
     fft = make_fft_grid(grid, batch=max(1, min(n_bands, 16)), threads=fft_threads_for(grid))
     v_loc_g = local_potential(crystal.lattice, crystal.positions, crystal.species, forms, grid)
     v_loc_r = fft.field_to_real(v_loc_g).real
-    ewald = ewald_energy(crystal.lattice, crystal.cartesian_positions,
-                         [pps[s].valence for s in crystal.species])
+    ewald = (ewald_energy(crystal.lattice, crystal.cartesian_positions,
+                          [pps[s].valence for s in crystal.species]) if crystal.n_atoms else 0.0)
     symmetrize = None
     if kpts.operations is not None and kpts.operations.n_ops > 1:
         sphere = density_sphere(crystal.lattice, settings.cutoff, grid)
@@ -131,7 +147,9 @@ class SCFState:
     occupations: np.ndarray | None = None
     output_density: np.ndarray | None = None
     energy: EnergyTerms | None = None
+    smearing: SmearingResult | None = None
     residual: float = np.inf
+    blas_seconds: float = 0.0
     iteration: int = 0
     applications: int = 0               # single-vector H applications so far
     history: list = field(default_factory=list)
@@ -242,19 +260,24 @@ def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
         state.wavefunctions[ik] = result.vectors
         eigs[ik] = result.eigenvalues
         applications += result.n_applications
-        state.blas_seconds = getattr(state, "blas_seconds", 0.0) + result.seconds_blas
-    occ = aufbau_occupations(len(setup.bases), nb, setup.n_electrons)
+        state.blas_seconds += result.seconds_blas
+    smear = _occupations(setup, eigs)
+    occ = smear.occupations if smear is not None else aufbau_occupations(
+        len(setup.bases), nb, setup.n_electrons)
     n_out = _density(setup, state.wavefunctions, occ)
     energy = _energy(setup, state.wavefunctions, occ, n_out)
     residual = float(np.mean(np.abs(n_out - state.density)) * setup.volume / setup.n_electrons)
-    previous = state.energy.total if state.energy is not None else None
+    # With smearing the variational quantity is the free energy F = E - sigma S.
+    free = energy.total + (smear.entropy_term if smear is not None else 0.0)
+    previous = state.history[-1]["free_energy_Ha"] if state.history else None
     state.eigenvalues, state.occupations, state.output_density = eigs, occ, n_out
-    state.energy, state.residual = energy, residual
+    state.energy, state.residual, state.smearing = energy, residual, smear
     state.applications += applications
     state.history.append({
         "iteration": state.iteration,
         "total_energy_Ha": energy.total,
-        "energy_change_Ha": None if previous is None else energy.total - previous,
+        "free_energy_Ha": free,
+        "energy_change_Ha": None if previous is None else free - previous,
         "density_residual": residual,
         "eigensolver_tolerance": tol,
         "hamiltonian_applications_per_band": applications / (nb * len(setup.bases)),
@@ -262,10 +285,31 @@ def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
     return state
 
 
+def _occupations(setup: SystemSetup, eigenvalues: np.ndarray) -> SmearingResult | None:
+    s = setup.settings
+    if s.smearing == "none":
+        return None
+    scheme = smearing_scheme(s.smearing, s.smearing_order if s.smearing == "methfessel-paxton"
+                             else None)
+    return smeared_occupations(eigenvalues, setup.kpoints.weights, setup.n_electrons, scheme,
+                               s.smearing_width)
+
+
+def _mixer(setup: SystemSetup) -> PulayMixer:
+    s = setup.settings
+    use_kerker = (s.mixing_preconditioner == "kerker"
+                  or (s.mixing_preconditioner == "auto" and s.smearing != "none"))
+    pre = None
+    if use_kerker:
+        q0 = s.screening_wavevector or thomas_fermi_wavevector(setup.n_electrons / setup.volume)
+        pre = kerker_preconditioner(setup.g2, q0)
+    return PulayMixer(s.mixing_weight, s.mixing_history, preconditioner=pre)
+
+
 def _density(setup: SystemSetup, wavefunctions, occupations) -> np.ndarray:
     n = np.zeros(setup.grid_shape)
     for basis, c, f, w in zip(setup.bases, wavefunctions, occupations, setup.kpoints.weights):
-        sel = f > 0
+        sel = np.abs(f) > 1e-14      # smeared occupations may be slightly negative
         setup.fft.accumulate_density(c[sel], basis.grid_index, w * f[sel], n)
     n /= setup.volume
     if setup.symmetrize is not None:
@@ -304,7 +348,8 @@ class GroundState:
     density: np.ndarray              # (*grid) bohr^-3, self-consistent output density
     wavefunctions: list
     history: list
-    band_edges: BandEdges
+    band_edges: BandEdges | None
+    smearing: SmearingResult | None
     hamiltonian_applications: int
     wall_seconds: float
     fft_seconds: float
@@ -325,7 +370,23 @@ class GroundState:
 
     @property
     def total_energy(self) -> float:
+        """Total energy E (Ha); with smearing, E at the smeared occupations."""
         return self.energy.total
+
+    @property
+    def free_energy(self) -> float:
+        """F = E - sigma S (Ha); equal to E without smearing."""
+        return self.energy.total + (self.smearing.entropy_term if self.smearing else 0.0)
+
+    @property
+    def zero_width_energy(self) -> float:
+        """Estimate of E at vanishing smearing (Ha): the energy to compare structures with."""
+        return self.smearing.zero_width_energy(self.energy.total) if self.smearing else self.energy.total
+
+    @property
+    def fermi_level(self) -> float | None:
+        """Fermi level (Ha) with smearing; None for fixed occupations (see band_edges)."""
+        return self.smearing.fermi_level if self.smearing else None
 
     @property
     def applications_per_band(self) -> float:
@@ -372,27 +433,26 @@ def _ground_state(crystal, settings, log, initial_density, setup) -> GroundState
                              key="initial_density", value=list(density.shape))
     else:
         density = np.full(setup.grid_shape, setup.n_electrons / setup.volume)
-    mixer = PulayMixer(s.mixing_weight, s.mixing_history)
+    mixer = _mixer(setup)
     state = SCFState(density=density)
     emit = log or (lambda line: None)
-    emit(f"{'iter':>4} {'total energy (Ha)':>20} {'change (Ha)':>12} {'density res.':>12} "
+    label = "free energy (Ha)" if s.smearing != "none" else "total energy (Ha)"
+    emit(f"{'iter':>4} {label:>20} {'change (Ha)':>12} {'density res.':>12} "
          f"{'H/band':>7} {'seconds':>8}")
     converged = False
-    previous = None
     while state.iteration < s.max_iterations:
         t0 = time.perf_counter()
         state = scf_step(setup, state)
         rec = state.history[-1]
         rec["seconds"] = time.perf_counter() - t0
         change = rec["energy_change_Ha"]
-        emit(f"{rec['iteration']:>4} {rec['total_energy_Ha']:>20.10f} "
+        emit(f"{rec['iteration']:>4} {rec['free_energy_Ha']:>20.10f} "
              f"{'' if change is None else f'{change:12.3e}':>12} {rec['density_residual']:>12.3e} "
              f"{rec['hamiltonian_applications_per_band']:>7.2f} {rec['seconds']:>8.2f}")
         if (change is not None and abs(change) < s.energy_tolerance
                 and state.residual < s.density_tolerance):
             converged = True
             break
-        previous = state.energy.total
         shape = state.density.shape
         state.density = mixer.mix(state.density.ravel(), state.output_density.ravel()).reshape(shape)
     messages = []
@@ -402,17 +462,26 @@ def _ground_state(crystal, settings, log, initial_density, setup) -> GroundState
                "raise self_consistency.max_iterations or lower self_consistency.mixing_weight")
         messages.append(msg)
         warnings.warn(msg, ConvergenceWarning, stacklevel=2)
-    edges = band_edges(state.eigenvalues, state.occupations)
-    if edges.gap is not None and edges.gap < 0:
-        msg = ("the lowest unoccupied level lies below the highest occupied one: this system is "
-               "a metal, and fixed integer occupations do not describe it")
-        messages.append(msg)
-        warnings.warn(msg, ConvergenceWarning, stacklevel=2)
-    del previous
+    edges = None
+    if state.smearing is None:
+        edges = band_edges(state.eigenvalues, state.occupations)
+        if edges.gap is not None and edges.gap < 0:
+            msg = ("the lowest unoccupied level lies below the highest occupied one: this system "
+                   "is a metal, and fixed integer occupations do not describe it; set "
+                   "occupations.smearing (e.g. \"cold\")")
+            messages.append(msg)
+            warnings.warn(msg, ConvergenceWarning, stacklevel=2)
+    else:
+        top = highest_band_charge(state.occupations, setup.kpoints.weights)
+        if top > TOP_BAND_CHARGE_LIMIT:
+            msg = (f"the highest computed band still holds {top:.1e} electrons: the smearing "
+                   "tail is cut off; raise self_consistency.empty_bands")
+            messages.append(msg)
+            warnings.warn(msg, ConvergenceWarning, stacklevel=2)
     return GroundState(
         setup=setup, converged=converged, iterations=state.iteration, energy=state.energy,
         eigenvalues=state.eigenvalues, occupations=state.occupations,
         density=state.output_density, wavefunctions=state.wavefunctions, history=state.history,
-        band_edges=edges, hamiltonian_applications=state.applications,
+        band_edges=edges, smearing=state.smearing, hamiltonian_applications=state.applications,
         wall_seconds=time.perf_counter() - t_start, fft_seconds=setup.fft.seconds,
-        blas_seconds=getattr(state, "blas_seconds", 0.0), messages=tuple(messages))
+        blas_seconds=state.blas_seconds, messages=tuple(messages))

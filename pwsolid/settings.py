@@ -27,6 +27,12 @@ SETTING_KEYS: dict[str, str] = {
     "functional": "exchange_correlation.functional",
     "pseudopotentials": "pseudopotentials",
     "empty_bands": "self_consistency.empty_bands",
+    "smearing": "occupations.smearing",
+    "smearing_width": "occupations.width",
+    "smearing_order": "occupations.methfessel_paxton_order",
+    "mixing_preconditioner": "self_consistency.mixing_preconditioner",
+    "screening_wavevector": "self_consistency.screening_wavevector",
+    "background_electrons": "crystal.background_electrons",
     "max_iterations": "self_consistency.max_iterations",
     "energy_tolerance": "self_consistency.energy_tolerance",
     "density_tolerance": "self_consistency.density_tolerance",
@@ -58,8 +64,25 @@ class GroundStateSettings:
         ``pseudos/`` directory.
     fft_grid : tuple of 3 int or None
         Force this FFT grid instead of the automatic choice.
-    empty_bands : int
-        Unoccupied bands computed in addition to the occupied ones.
+    empty_bands : int or None
+        Bands computed beyond the N/2 needed for the electrons; ``None`` picks
+        4 for fixed occupations and 4 + 20% of N/2 with smearing, enough for the
+        tail of the occupation function at the usual widths.
+    smearing : str
+        ``"none"`` (Aufbau filling, insulators) or a smearing scheme of
+        ``pwsolid.occupations.SMEARING_SCHEMES`` for metals.
+    smearing_width : float
+        Width sigma of the smearing in hartree.
+    smearing_order : int
+        Order of the Methfessel-Paxton scheme (ignored by the others).
+    mixing_preconditioner : str
+        ``"auto"`` (Kerker with smearing, none without), ``"kerker"`` or ``"none"``.
+    screening_wavevector : float or None
+        Kerker q0 in 1/bohr; ``None`` takes the Thomas-Fermi wave vector of the
+        mean valence density.
+    background_electrons : float
+        Electrons added to the cell together with a uniform positive background
+        of the same charge (jellium when the cell has no atoms).
     max_iterations : int
         Largest number of SCF iterations.
     energy_tolerance : float
@@ -79,7 +102,13 @@ class GroundStateSettings:
     functional: Any = "lda-pz81"
     pseudopotentials: Mapping[str, Any] = field(default_factory=dict)
     fft_grid: tuple[int, int, int] | None = None
-    empty_bands: int = 4
+    empty_bands: int | None = None
+    smearing: str = "none"
+    smearing_width: float = 0.01
+    smearing_order: int = 1
+    mixing_preconditioner: str = "auto"
+    screening_wavevector: float | None = None
+    background_electrons: float = 0.0
     max_iterations: int = 40
     energy_tolerance: float = 1e-8
     density_tolerance: float = 1e-6
@@ -106,8 +135,10 @@ class GroundStateSettings:
                 bad("fft_grid", "must be three integers between 2 and 1024")
             object.__setattr__(self, "fft_grid", grid)
         for name, lo, hi in (("empty_bands", 0, 10000), ("max_iterations", 1, 100000),
-                             ("mixing_history", 1, 100)):
+                             ("mixing_history", 1, 100), ("smearing_order", 0, 30)):
             value = getattr(self, name)
+            if value is None and name == "empty_bands":
+                continue
             if isinstance(value, bool) or int(value) != value or not lo <= value <= hi:
                 bad(name, f"must be an integer between {lo} and {hi}")
             object.__setattr__(self, name, int(value))
@@ -117,6 +148,22 @@ class GroundStateSettings:
             bad("density_tolerance", "must be a positive number below 1")
         if not (0 < self.mixing_weight <= 1):
             bad("mixing_weight", "must lie in (0, 1]")
+        smearing = str(self.smearing).strip().lower()
+        valid = ("none", "fermi-dirac", "gaussian", "methfessel-paxton", "cold")
+        if smearing not in valid:
+            bad("smearing", f"unknown smearing; accepted: {', '.join(valid)}")
+        object.__setattr__(self, "smearing", smearing)
+        if not (np.isfinite(self.smearing_width) and 1e-6 <= self.smearing_width <= 1.0):
+            bad("smearing_width", "must lie between 1e-6 Ha and 1 Ha")
+        pre = str(self.mixing_preconditioner).strip().lower()
+        if pre not in ("auto", "kerker", "none"):
+            bad("mixing_preconditioner", "accepted: auto, kerker, none")
+        object.__setattr__(self, "mixing_preconditioner", pre)
+        if self.screening_wavevector is not None and not (
+                np.isfinite(self.screening_wavevector) and 0 < self.screening_wavevector < 50):
+            bad("screening_wavevector", "must be positive and below 50 bohr^-1")
+        if not (np.isfinite(self.background_electrons) and 0 <= self.background_electrons <= 1e4):
+            bad("background_electrons", "must be a number between 0 and 10000")
         if not isinstance(self.use_symmetry, (bool, np.bool_)):
             bad("use_symmetry", "must be true or false")
         object.__setattr__(self, "pseudopotentials", dict(self.pseudopotentials))

@@ -23,6 +23,7 @@ __all__ = [
     "HA_PER_BOHR3_GPA",
     "KELVIN_HA",
     "ENERGY_UNITS",
+    "INVERSE_LENGTH_UNITS",
     "LENGTH_UNITS",
     "TEMPERATURE_UNITS",
     "parse_quantity",
@@ -59,6 +60,13 @@ LENGTH_UNITS: dict[str, float] = {
     "nm": 10.0 / BOHR_ANGSTROM,
     "pm": 0.01 / BOHR_ANGSTROM,
 }
+#: Accepted inverse-length units (wave vectors) and their size in 1/bohr.
+INVERSE_LENGTH_UNITS: dict[str, float] = {
+    "bohr^-1": 1.0,
+    "1/bohr": 1.0,
+    "angstrom^-1": BOHR_ANGSTROM,
+    "1/angstrom": BOHR_ANGSTROM,
+}
 #: Accepted temperature-like units (as an energy k_B T) and their size in hartree.
 TEMPERATURE_UNITS: dict[str, float] = {"k": KELVIN_HA, "kelvin": KELVIN_HA}
 
@@ -66,14 +74,18 @@ _KINDS = {
     "energy": ENERGY_UNITS,
     "length": LENGTH_UNITS,
     "temperature": {**TEMPERATURE_UNITS, **ENERGY_UNITS},
+    "inverse_length": INVERSE_LENGTH_UNITS,
 }
 _PRETTY = {
     "energy": "Ha, Ry, eV, meV, mHa",
     "length": "bohr, angstrom, nm, pm",
     "temperature": "K, Ha, Ry, eV, meV",
+    "inverse_length": "bohr^-1, 1/bohr, angstrom^-1, 1/angstrom",
 }
+_NOUN = {"energy": "an energy", "length": "a length", "temperature": "a temperature",
+         "inverse_length": "a wave vector"}
 _NUMBER_UNIT = re.compile(
-    r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z]+)\s*$")
+    r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*([A-Za-z]+(?:\^-1)?|1/[A-Za-z]+)\s*$")
 
 
 def parse_quantity(text, kind: str, *, key: str | None = None,
@@ -86,7 +98,8 @@ def parse_quantity(text, kind: str, *, key: str | None = None,
         A string such as ``"15 Ha"`` or ``"5.43 angstrom"``. Bare numbers are
         refused: a unit must always be written.
     kind
-        ``"energy"``, ``"length"`` or ``"temperature"`` (returned as k_B T in Ha).
+        ``"energy"``, ``"length"``, ``"temperature"`` (returned as k_B T in Ha)
+        or ``"inverse_length"`` (returned in 1/bohr).
 
     Returns
     -------
@@ -101,7 +114,7 @@ def parse_quantity(text, kind: str, *, key: str | None = None,
     units = _KINDS[kind]
     if isinstance(text, bool) or not isinstance(text, str):
         raise InputError(
-            f"expected a {kind} written with its unit as a string, e.g. "
+            f"expected {_NOUN[kind]} written with its unit as a string, e.g. "
             f"{_example(kind)!r}; accepted units: {_PRETTY[kind]}",
             key=key, value=text, source=source, has_value=True)
     m = _NUMBER_UNIT.match(text)
@@ -120,7 +133,8 @@ def parse_quantity(text, kind: str, *, key: str | None = None,
 
 
 def _example(kind: str) -> str:
-    return {"energy": "15 Ha", "length": "5.43 angstrom", "temperature": "300 K"}[kind]
+    return {"energy": "15 Ha", "length": "5.43 angstrom", "temperature": "300 K",
+            "inverse_length": "0.9 bohr^-1"}[kind]
 
 
 def to_ev(energy_ha):

@@ -36,6 +36,7 @@ _PARAM_UNITS = {
     "energy": {"Ha": 1.0, "Ry": ENERGY_UNITS["ry"], "eV": ENERGY_UNITS["ev"]},
     "inverse_area": {"bohr^-2": 1.0, "angstrom^-2": 1.0 / _ANG ** 2},
     "energy_per_area": {"Ha/bohr^2": 1.0, "Ry/bohr^2": 0.5},
+    "number": {"1": 1.0},
 }
 
 

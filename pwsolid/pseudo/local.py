@@ -19,7 +19,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.special import erf
 
-__all__ = ["LocalForm", "EmptyCore", "AppelbaumHamann", "GaussianLocal", "LOCAL_FORMS"]
+__all__ = ["LocalForm", "EmptyCore", "AppelbaumHamann", "GaussianLocal", "EvanescentCore",
+           "LOCAL_FORMS"]
 
 
 class LocalForm:
@@ -169,12 +170,65 @@ class GaussianLocal(LocalForm):
         return coul + np.exp(-x2 / 2) * (self.c1 + self.c2 * x2 + self.c3 * x2 ** 2 + self.c4 * x2 ** 3)
 
 
+@dataclass(frozen=True)
+class EvanescentCore(LocalForm):
+    """Evanescent-core local pseudopotential of Fiolhais et al.
+
+    Notes
+    -----
+    With x = r / R, beta = (alpha^3 - 2 alpha) / (4 (alpha^2 - 1)) and
+    A = alpha^2/2 - alpha beta:
+
+    v(r) = -(Z/R) {(1/x) [1 - (1 + beta x) exp(-alpha x)] - A exp(-x)},
+
+    analytic at r = 0 with vanishing linear and cubic terms. With Q = q R:
+
+    w(q) = 4 pi Z R^2 [1/(Q^2 + alpha^2) + 2 alpha beta/(Q^2 + alpha^2)^2 + 2A/(Q^2 + 1)^2].
+
+    References
+    ----------
+    C. Fiolhais, J. P. Perdew, S. Q. Armster, J. M. MacLaren and M. Brajczewska,
+    Phys. Rev. B 51, 14001 (1995).
+    """
+
+    valence: float
+    alpha: float
+    decay_length: float
+
+    @property
+    def beta(self) -> float:
+        a = self.alpha
+        return (a ** 3 - 2 * a) / (4 * (a * a - 1))
+
+    @property
+    def amplitude(self) -> float:
+        return self.alpha ** 2 / 2 - self.alpha * self.beta
+
+    def short_range(self, q):
+        q = np.asarray(q, float)
+        big_q2 = (q * self.decay_length) ** 2
+        a2 = self.alpha ** 2
+        return (4 * np.pi * self.valence * self.decay_length ** 2
+                * (1 / (big_q2 + a2) + 2 * self.alpha * self.beta / (big_q2 + a2) ** 2
+                   + 2 * self.amplitude / (big_q2 + 1) ** 2))
+
+    def real_space(self, r):
+        r = np.asarray(r, float)
+        x = r / self.decay_length
+        xs = np.maximum(x, 1e-300)
+        a, b = self.alpha, self.beta
+        # (1/x)[1 - (1 + b x) e^{-a x}] -> (a - b) as x -> 0
+        core = np.where(x > 1e-8, (1 - (1 + b * xs) * np.exp(-a * xs)) / xs, a - b)
+        return -(self.valence / self.decay_length) * (core - self.amplitude * np.exp(-x))
+
+
 #: Local forms by the name used in pseudopotential files, with the parameters
 #: each needs and the unit kind of each parameter.
 LOCAL_FORMS = {
     "empty-core": (EmptyCore, {"core_radius": "length"}),
     "appelbaum-hamann": (AppelbaumHamann, {"alpha": "inverse_area", "v1": "energy",
                                            "v2": "energy_per_area"}),
+    "evanescent-core": (EvanescentCore, {"alpha": "number", "decay_length": "length"}),
     "goedecker-teter-hutter-local": (GaussianLocal, {"r_loc": "length", "c1": "energy",
                                                      "c2": "energy", "c3": "energy",
                                                      "c4": "energy"}),

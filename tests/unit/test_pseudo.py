@@ -5,13 +5,15 @@ import pytest
 from scipy.integrate import quad
 
 from pwsolid.errors import InputError
-from pwsolid.pseudo import (AppelbaumHamann, EmptyCore, GaussianLocal, bundled_pseudopotentials,
-                            default_pseudopotential_file, load_pseudopotential)
+from pwsolid.pseudo import (AppelbaumHamann, EmptyCore, EvanescentCore, GaussianLocal,
+                            bundled_pseudopotentials, default_pseudopotential_file,
+                            load_pseudopotential)
 
 FORMS = [
     AppelbaumHamann(valence=4, alpha=0.6102, v1=3.042, v2=-1.372),
     GaussianLocal(valence=1, r_loc=0.2, c1=-4.0663326, c2=0.6778322),
     GaussianLocal(valence=3, r_loc=0.45, c1=-8.49, c2=0.3, c3=0.1, c4=-0.02),
+    EvanescentCore(valence=3, alpha=3.577, decay_length=0.3345),
 ]
 
 
@@ -64,3 +66,22 @@ def test_malformed_files_give_clear_errors(tmp_path):
         with pytest.raises(InputError, match=fragment) as info:
             load_pseudopotential(bad)
         assert "X.toml" in str(info.value)
+
+
+def test_evanescent_core_is_smooth_at_the_nucleus():
+    # The defining property of the form (Fiolhais et al., Phys. Rev. B 51, 14001 (1995)):
+    # v(r) is analytic at r = 0 with vanishing linear and cubic terms. The odd part of
+    # the analytic continuation, O(x) = [f(x) - f(-x)]/2 = c1 x + c3 x^3 + c5 x^5 + ...,
+    # must then scale as x^5: halving x divides O by 32 (it would divide it by 2 or 8
+    # if c1 or c3 were non-zero).
+    form = EvanescentCore(valence=1, alpha=3.1, decay_length=1.0)
+    a, b, amp = form.alpha, form.beta, form.amplitude
+
+    def f(x):   # the bracket of the published formula, continued to negative x
+        return (1 - (1 + b * x) * np.exp(-a * x)) / x - amp * np.exp(-x)
+
+    odd = [(f(x) - f(-x)) / 2 for x in (0.08, 0.04)]
+    assert 28 < odd[0] / odd[1] < 36
+    assert np.isclose(-form.real_space(np.array([0.08]))[0], f(0.08), rtol=1e-12)
+    # and it is -Z/r far outside the core
+    assert np.isclose(form.real_space(np.array([30.0]))[0], -1 / 30.0, rtol=1e-9)
