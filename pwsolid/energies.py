@@ -5,6 +5,7 @@ E = T_s + E_loc + E_H + E_xc + E_ion-ion + E_G0, with
 * T_s = sum_k w_k sum_n f_nk sum_G |c_nk(G)|^2 |k+G|^2 / 2
 * E_loc = Omega sum_{G != 0} V_loc(G)* n(G)
 * E_H = (Omega/2) sum_{G != 0} 4 pi |n(G)|^2 / G^2
+* E_nl = sum_k w_k sum_n f_nk <psi_nk| V_nl |psi_nk> for separable pseudopotentials
 * E_xc = int n(r) eps_xc(n(r)) d^3r on the FFT grid
 * E_ion-ion: Ewald sum of the ionic point charges in a neutralising background
 * E_G0 = (N_electrons / Omega) sum_atoms int [v_atom(r) + Z/r] d^3r, the finite
@@ -19,7 +20,7 @@ import numpy as np
 
 from .units import HARTREE_EV
 
-__all__ = ["EnergyTerms", "kinetic_energy", "local_energy", "xc_energy"]
+__all__ = ["EnergyTerms", "kinetic_energy", "local_energy", "xc_energy", "nonlocal_energy"]
 
 
 @dataclass(frozen=True)
@@ -32,6 +33,7 @@ class EnergyTerms:
     exchange_correlation: float
     ewald: float
     pseudopotential_g0: float
+    nonlocal_pseudopotential: float = 0.0
 
     @property
     def total(self) -> float:
@@ -67,3 +69,15 @@ def local_energy(v_loc_g: np.ndarray, density_g: np.ndarray, volume: float) -> t
 def xc_energy(density_r: np.ndarray, eps_xc: np.ndarray, volume: float) -> float:
     """int n eps_xc d^3r as a grid sum."""
     return float(np.mean(density_r * eps_xc)) * volume
+
+
+def nonlocal_energy(coefficients: list[np.ndarray], operators: list, occupations: np.ndarray,
+                    weights: np.ndarray) -> float:
+    """E_nl from coefficient blocks and per-k (P, D) projector operators."""
+    total = 0.0
+    for c, (proj, coupling), f, w in zip(coefficients, operators, occupations, weights):
+        if proj is None or not len(proj):
+            continue
+        b = c @ proj.conj().T
+        total += w * float(np.einsum("n,na,ab,nb->", f, b.conj(), coupling, b).real)
+    return total

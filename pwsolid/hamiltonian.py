@@ -101,11 +101,17 @@ class KPointHamiltonian:
     basis: PlaneWaveBasis
     fft: FFTGrid
     potential: np.ndarray
+    projectors: np.ndarray | None = None   # (n_proj, n_pw) complex, see pseudo.separable
+    coupling: np.ndarray | None = None     # (n_proj, n_proj) float, Ha
 
     def apply(self, block: np.ndarray) -> np.ndarray:
         """H applied to rows of ``block`` (nb, n_pw) -> (nb, n_pw)."""
         vpsi = self.fft.apply_potential(block, self.basis.grid_index, self.potential)
         vpsi += self.basis.kinetic[None, :] * block
+        if self.projectors is not None and len(self.projectors):
+            # all atoms and bands at once: two BLAS-3 products
+            proj = block @ self.projectors.conj().T
+            vpsi += (proj @ self.coupling.T) @ self.projectors
         return vpsi
 
     def dense_matrix(self) -> np.ndarray:
@@ -115,4 +121,6 @@ class KPointHamiltonian:
         dm = (self.basis.miller[:, None, :] - self.basis.miller[None, :, :]) % shape
         h = v_g[dm[..., 0], dm[..., 1], dm[..., 2]]
         h[np.diag_indices_from(h)] += self.basis.kinetic
+        if self.projectors is not None and len(self.projectors):
+            h += self.projectors.T @ self.coupling @ self.projectors.conj()
         return h

@@ -21,7 +21,7 @@ from .basis import PlaneWaveBasis, density_sphere, fft_grid_for_cutoff, grid_g_v
 from .crystal import Crystal
 from .eigensolver import davidson, dense_lowest_eigenpairs
 from .electrostatics import ewald_energy, hartree_energy, hartree_potential
-from .energies import EnergyTerms, kinetic_energy, local_energy, xc_energy
+from .energies import EnergyTerms, kinetic_energy, local_energy, nonlocal_energy, xc_energy
 from .errors import ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, kinetic_preconditioner, local_potential
@@ -30,6 +30,7 @@ from .mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
 from .parallel import fft_threads_for, single_threaded_blas
 from .occupations import (TOP_BAND_CHARGE_LIMIT, BandEdges, SmearingResult, aufbau_occupations,
                           band_edges, highest_band_charge, smeared_occupations, smearing_scheme)
+from .pseudo import nonlocal_operator
 from .pseudo import (Pseudopotential, default_pseudopotential_file, load_pseudopotential,
                      resolve_pseudopotential)
 from .settings import GroundStateSettings
@@ -59,6 +60,15 @@ def load_pseudopotentials(species, choices) -> dict[str, Pseudopotential]:
     return out
 
 
+def _nonlocal(crystal: Crystal, pps: dict, basis: PlaneWaveBasis):
+    """(P, D) of the separable pseudopotentials at one k-point, or (None, None)."""
+    atoms = [(tau, pps[s].separable) for s, tau in zip(crystal.species, crystal.cartesian_positions)
+             if pps[s].is_nonlocal]
+    if not atoms:
+        return None, None
+    return nonlocal_operator(basis.kpg, atoms, crystal.volume)
+
+
 def _symmetry_of(crystal: Crystal) -> SymmetryOperations:
     """Space group of the crystal; a cell without atoms (jellium) has its lattice's symmetry."""
     if crystal.n_atoms:
@@ -86,6 +96,7 @@ class SystemSetup:
     n_electrons: float
     n_bands: int
     symmetrize: Callable | None
+    nonlocal_ops: list = field(default_factory=list)   # per k: (P, D) or (None, None)
 
     @property
     def volume(self) -> float:
@@ -134,7 +145,8 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None) -> Sy
         sphere = density_sphere(crystal.lattice, settings.cutoff, grid)
         symmetrize = make_density_symmetrizer(kpts.operations, grid, sphere)
     return SystemSetup(crystal, settings, pps, functional, symmetry, kpts, tuple(grid), fft,
-                       bases, g2, v_loc_g, v_loc_r, ewald, n_el, n_bands, symmetrize)
+                       bases, g2, v_loc_g, v_loc_r, ewald, n_el, n_bands, symmetrize,
+                       [_nonlocal(crystal, pps, b) for b in bases])
 
 
 @dataclass
@@ -195,8 +207,9 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
             if basis.size < n_bands:
                 raise InputError(f"{n_bands} bands need more plane waves than the {basis.size} "
                                  "of this cutoff", key="basis.cutoff", value=s.cutoff)
-            guess = _initial_guess(basis, v_eff_g, n_bands, setup.grid_shape)
-            ham = KPointHamiltonian(basis, setup.fft, v_eff)
+            proj, coupling = _nonlocal(setup.crystal, setup.pseudopotentials, basis)
+            guess = _initial_guess(basis, v_eff_g, n_bands, setup.grid_shape, proj, coupling)
+            ham = KPointHamiltonian(basis, setup.fft, v_eff, proj, coupling)
             res = davidson(ham.apply, kinetic_preconditioner(basis.kinetic), guess,
                            tolerance=tolerance, max_iterations=200)
             out[ik] = res.eigenvalues
@@ -213,7 +226,7 @@ def _effective_potential(setup: SystemSetup, density: np.ndarray):
 
 
 def _initial_guess(basis: PlaneWaveBasis, potential_g: np.ndarray, n_bands: int,
-                   shape) -> np.ndarray:
+                   shape, projectors=None, coupling=None) -> np.ndarray:
     """Lowest states of H in the slowest plane waves (complete shells), padded into the basis."""
     n_small = min(basis.size, max(3 * n_bands, 60))
     kin = basis.kinetic
@@ -223,6 +236,9 @@ def _initial_guess(basis: PlaneWaveBasis, potential_g: np.ndarray, n_bands: int,
     dm = (m[:, None, :] - m[None, :, :]) % np.array(shape)
     h = potential_g[dm[..., 0], dm[..., 1], dm[..., 2]]
     h[np.diag_indices_from(h)] += kin[:n_small]
+    if projectors is not None:
+        p = projectors[:, :n_small]
+        h += p.T @ coupling @ p.conj()
     _, vecs = dense_lowest_eigenpairs(0.5 * (h + h.conj().T), n_bands)
     guess = np.zeros((n_bands, basis.size), dtype=complex)
     guess[:, :n_small] = vecs
@@ -250,11 +266,12 @@ def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
     fresh = state.wavefunctions is None
     if fresh:
         v_eff_g = setup.fft.field_to_reciprocal(v_eff)
-        state.wavefunctions = [_initial_guess(b, v_eff_g, nb, setup.grid_shape) for b in setup.bases]
+        state.wavefunctions = [_initial_guess(b, v_eff_g, nb, setup.grid_shape, *ops)
+                               for b, ops in zip(setup.bases, setup.nonlocal_ops)]
     eigs = np.empty((len(setup.bases), nb))
     applications = 0
     for ik, basis in enumerate(setup.bases):
-        ham = KPointHamiltonian(basis, setup.fft, v_eff)
+        ham = KPointHamiltonian(basis, setup.fft, v_eff, *setup.nonlocal_ops[ik])
         result = davidson(ham.apply, kinetic_preconditioner(basis.kinetic),
                           state.wavefunctions[ik], tolerance=tol, max_iterations=4 if not fresh else 30)
         state.wavefunctions[ik] = result.vectors
@@ -329,6 +346,8 @@ def _energy(setup: SystemSetup, wavefunctions, occupations, density) -> EnergyTe
         exchange_correlation=xc_energy(density, eps, setup.volume),
         ewald=setup.ewald,
         pseudopotential_g0=e_g0,
+        nonlocal_pseudopotential=nonlocal_energy(wavefunctions, setup.nonlocal_ops, occupations,
+                                                 setup.kpoints.weights),
     )
 
 

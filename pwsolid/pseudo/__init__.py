@@ -2,11 +2,13 @@
 
 from .files import (Pseudopotential, bundled_pseudopotentials, default_pseudopotential_file,
                     load_pseudopotential, resolve_pseudopotential)
+from .separable import SeparablePart, ProjectorChannel, nonlocal_operator
 from .local import (LOCAL_FORMS, AppelbaumHamann, EmptyCore, EvanescentCore, GaussianLocal,
                     LocalForm)
 
 __all__ = [
     "Pseudopotential", "load_pseudopotential", "default_pseudopotential_file",
     "resolve_pseudopotential", "bundled_pseudopotentials", "LocalForm", "EmptyCore",
-    "AppelbaumHamann", "GaussianLocal", "EvanescentCore", "LOCAL_FORMS",
+    "AppelbaumHamann", "GaussianLocal", "EvanescentCore", "LOCAL_FORMS", "SeparablePart",
+    "ProjectorChannel", "nonlocal_operator",
 ]

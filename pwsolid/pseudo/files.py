@@ -25,7 +25,10 @@ from pathlib import Path
 from ..errors import InputError
 from ..resources import pseudo_dir
 from ..units import BOHR_ANGSTROM, ENERGY_UNITS, parse_quantity
+import numpy as np
+
 from .local import LOCAL_FORMS, LocalForm
+from .separable import ProjectorChannel, SeparablePart, hgh_off_diagonal
 
 __all__ = ["Pseudopotential", "load_pseudopotential", "default_pseudopotential_file",
            "resolve_pseudopotential", "bundled_pseudopotentials"]
@@ -60,6 +63,8 @@ class Pseudopotential:
         How the parameter values were checked.
     suggested_cutoff : float or None
         Cutoff (Ha) the file recommends, if any.
+    separable : SeparablePart or None
+        Nonlocal projectors, for the dual-space Gaussian form.
     """
 
     element: str
@@ -70,6 +75,11 @@ class Pseudopotential:
     reference: str = ""
     status: str = ""
     suggested_cutoff: float | None = None
+    separable: SeparablePart | None = None
+
+    @property
+    def is_nonlocal(self) -> bool:
+        return self.separable is not None and self.separable.n_projectors > 0
 
 
 def bundled_pseudopotentials(element: str | None = None) -> list[str]:
@@ -144,7 +154,8 @@ def load_pseudopotential(path) -> Pseudopotential:
         raise InputError(f"cannot read the file: {exc}", source=src) from None
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML: {exc}", source=src) from None
-    allowed = {"element", "valence_charge", "form", "parameters", "source", "suggested_cutoff"}
+    allowed = {"element", "valence_charge", "form", "parameters", "source", "suggested_cutoff",
+               "projectors"}
     for key in doc:
         if key not in allowed:
             raise InputError(f"unknown key; accepted keys: {', '.join(sorted(allowed))}",
@@ -153,6 +164,12 @@ def load_pseudopotential(path) -> Pseudopotential:
         if key not in doc:
             raise InputError("required key is missing", key=key, source=src)
     form_name = doc["form"]
+    nonlocal_form = form_name == "goedecker-teter-hutter"
+    if nonlocal_form:
+        form_name = "goedecker-teter-hutter-local"
+    elif "projectors" in doc:
+        raise InputError("projectors belong to form = \"goedecker-teter-hutter\" only",
+                         key="projectors", source=src)
     if form_name not in LOCAL_FORMS:
         raise InputError(f"unknown form; accepted: {', '.join(LOCAL_FORMS)}", key="form",
                          value=form_name, source=src)
@@ -176,7 +193,59 @@ def load_pseudopotential(path) -> Pseudopotential:
     if cutoff is not None:
         cutoff = parse_quantity(cutoff, "energy", key="suggested_cutoff", source=src)
     source = doc.get("source", {})
+    separable = _projectors(doc.get("projectors", []), src) if nonlocal_form else None
     return Pseudopotential(
         element=str(doc["element"]), valence=float(z), local=cls(valence=float(z), **values),
-        form=form_name, source_file=path, reference=str(source.get("reference", "")),
-        status=str(source.get("status", "")), suggested_cutoff=cutoff)
+        form=doc["form"], source_file=path, reference=str(source.get("reference", "")),
+        status=str(source.get("status", "")), suggested_cutoff=cutoff, separable=separable)
+
+
+def _projectors(entries, src: str) -> SeparablePart:
+    """Read ``[[projectors]]`` tables: l, radius, and h (full) or h_diagonal."""
+    if not isinstance(entries, list):
+        raise InputError("must be an array of tables [[projectors]]", key="projectors",
+                         value=entries, source=src)
+    channels = []
+    for n, entry in enumerate(entries):
+        key = f"projectors[{n}]"
+        if not isinstance(entry, dict):
+            raise InputError("each projector entry must be a table", key=key, source=src)
+        unknown = set(entry) - {"l", "radius", "h", "h_diagonal", "off_diagonal", "h_unit"}
+        if unknown:
+            raise InputError(f"unknown keys {sorted(unknown)}; accepted: l, radius, h or "
+                             "h_diagonal (+ off_diagonal), h_unit", key=key, source=src)
+        l = entry.get("l")
+        if isinstance(l, bool) or l not in (0, 1, 2):
+            raise InputError("l must be 0, 1 or 2", key=f"{key}.l", value=l, source=src)
+        radius = _parameter(entry.get("radius"), f"{key}.radius", "length", src)
+        unit = entry.get("h_unit", "Ha")
+        if unit not in _PARAM_UNITS["energy"]:
+            raise InputError(f"must be one of {', '.join(_PARAM_UNITS['energy'])}",
+                             key=f"{key}.h_unit", value=unit, source=src)
+        scale = _PARAM_UNITS["energy"][unit]
+        if ("h" in entry) == ("h_diagonal" in entry):
+            raise InputError("give either h (the full matrix) or h_diagonal", key=key, source=src)
+        try:
+            if "h" in entry:
+                h = np.array(entry["h"], dtype=float)
+                if h.ndim != 2 or h.shape[0] != h.shape[1] or not np.allclose(h, h.T):
+                    raise ValueError
+            else:
+                diag = [float(x) for x in entry["h_diagonal"]]
+                rule = entry.get("off_diagonal", "none")
+                if rule == "hartwigsen-goedecker-hutter":
+                    h = hgh_off_diagonal(l, diag)
+                elif rule == "none":
+                    h = np.diag(diag)
+                else:
+                    raise InputError("off_diagonal must be \"none\" or "
+                                     "\"hartwigsen-goedecker-hutter\"",
+                                     key=f"{key}.off_diagonal", value=rule, source=src)
+        except (TypeError, ValueError):
+            raise InputError("h must be a symmetric square matrix of numbers (1 to 3 rows)",
+                             key=f"{key}.h", value=entry.get("h", entry.get("h_diagonal")),
+                             source=src) from None
+        if not 1 <= h.shape[0] <= 3 or (l == 2 and h.shape[0] > 2):
+            raise InputError("1 to 3 radial projectors (2 for l = 2)", key=key, source=src)
+        channels.append(ProjectorChannel(l=int(l), radius=radius, h=h * scale))
+    return SeparablePart(tuple(channels))
