@@ -41,7 +41,8 @@ def build_parser() -> argparse.ArgumentParser:
     check = sub.add_parser("check-input", help="validate an input file without running it")
     check.add_argument("input")
 
-    sub.add_parser("input-keys", help="list every input key with its type, unit and default")
+    keys = sub.add_parser("input-keys", help="list every input key with its type, unit and default")
+    keys.add_argument("--markdown", action="store_true", help="as a Markdown table")
     sub.add_parser("list-pseudopotentials", help="list the bundled pseudopotential files")
     for module in _command_modules():
         module.register(sub)
@@ -173,7 +174,7 @@ def _check_input(args) -> int:
 def _input_keys(args) -> int:
     from .config import schema_text
 
-    print(schema_text())
+    print(schema_text(markdown=args.markdown))
     return EXIT_OK
 
 
