@@ -42,7 +42,7 @@ def house_style() -> dict:
         "savefig.facecolor": _CANVAS,
         "axes.edgecolor": _INK,
         "axes.labelcolor": _INK,
-        "axes.titleweight": "semibold",
+        "axes.titleweight": "bold",
         "axes.titlesize": 11,
         "axes.labelsize": 10,
         "axes.spines.top": False,
