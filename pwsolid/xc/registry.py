@@ -1,8 +1,11 @@
 """Exchange-correlation functionals by name (layer 1).
 
-A :class:`Functional` bundles the kernels of :mod:`pwsolid.xc.lda` under a registry
-name. :func:`get_functional` turns what a user wrote (a name, a callable, or a
-ready :class:`Functional`) into one, and is the only place that knows the names.
+A :class:`Functional` bundles the kernels of :mod:`pwsolid.xc.lda` and
+:mod:`pwsolid.xc.extra_lda` under a registry name. :func:`get_functional` turns
+what a user wrote (a name, ``"file:path/to/functional.py"``, a callable, or a ready
+:class:`Functional`) into one, and is the only place that knows the names.
+Functionals loaded from files (:mod:`pwsolid.xc.user`) or built in Python can be
+added under a name of their own with :func:`register_functional`.
 """
 
 from __future__ import annotations
@@ -14,6 +17,10 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from ..errors import InputError
+from .extra_lda import (hedin_lundqvist_correlation, hedin_lundqvist_correlation_polarized,
+                        von_barth_hedin_correlation, von_barth_hedin_correlation_polarized,
+                        vwn_correlation, vwn_correlation_polarized, wigner_correlation,
+                        wigner_correlation_polarized)
 from .lda import (pw92_correlation, pw92_correlation_polarized, pz81_correlation,
                   pz81_correlation_polarized, slater_exchange, slater_exchange_polarized)
 
@@ -22,7 +29,13 @@ __all__ = [
     "PolarizedKernel",
     "Functional",
     "FUNCTIONALS",
+    "FILE_PREFIX",
+    "SLATER_EXCHANGE",
+    "combine_exchange_correlation",
     "get_functional",
+    "register_functional",
+    "unregister_functional",
+    "available_functionals",
 ]
 
 _KEY = "exchange_correlation.functional"
@@ -56,12 +69,28 @@ class Functional:
     polarized : PolarizedKernel or None
         ``f(n_up, n_down) -> (eps_xc, v_up, v_down)``; ``None`` when the functional
         has no spin-polarised form (e.g. a user callable of the density only).
+    exchange, correlation : Functional or None
+        The exchange and correlation parts, when the functional is their sum and
+        exposes them (all built-in ones do). Both ``None``: the split is unknown,
+        and the exact-condition checks take the exchange to be Slater's. Only one
+        given: the other part is absent (e.g. ``slater-exchange`` has no
+        correlation).
+    origin : str
+        Where it came from: ``"built-in"``, ``"file:<path>"`` or ``"callable"``.
     """
 
     name: str
     description: str
     unpolarized: UnpolarizedKernel = field(repr=False, compare=False)
     polarized: PolarizedKernel | None = field(default=None, repr=False, compare=False)
+    exchange: Functional | None = field(default=None, repr=False, compare=False)
+    correlation: Functional | None = field(default=None, repr=False, compare=False)
+    origin: str = field(default="built-in", compare=False)
+
+    @property
+    def has_parts(self) -> bool:
+        """Whether the exchange/correlation split is known (either part given)."""
+        return self.exchange is not None or self.correlation is not None
 
     @property
     def has_spin_polarized_form(self) -> bool:
@@ -118,57 +147,154 @@ class Functional:
         return arrays
 
 
-def _lda_pz81(n: Array) -> tuple[Array, Array]:
-    eps_x, v_x = slater_exchange(n)
-    eps_c, v_c = pz81_correlation(n)
-    return eps_x + eps_c, v_x + v_c
+def combine_exchange_correlation(name: str, description: str, exchange: Functional,
+                                 correlation: Functional, *,
+                                 origin: str = "built-in") -> Functional:
+    """The sum of an exchange and a correlation functional, keeping both as parts.
+
+    Parameters
+    ----------
+    name, description : str
+        Of the combined functional.
+    exchange, correlation : Functional
+        The parts; the spin-polarised form exists when both parts have one.
+    origin : str
+        See :class:`Functional`.
+
+    Returns
+    -------
+    Functional
+        ``eps_xc = eps_x + eps_c`` and ``v_xc = v_x + v_c`` (and per spin).
+    """
+    def unpolarized(n: Array) -> tuple[Array, Array]:
+        eps_x, v_x = exchange.evaluate(n)
+        eps_c, v_c = correlation.evaluate(n)
+        return eps_x + eps_c, v_x + v_c
+
+    polarized = None
+    if exchange.has_spin_polarized_form and correlation.has_spin_polarized_form:
+        def polarized(n_up: Array, n_down: Array) -> tuple[Array, Array, Array]:
+            eps_x, vx_up, vx_down = exchange.evaluate_polarized(n_up, n_down)
+            eps_c, vc_up, vc_down = correlation.evaluate_polarized(n_up, n_down)
+            return eps_x + eps_c, vx_up + vc_up, vx_down + vc_down
+
+    return Functional(name, description, unpolarized, polarized, exchange=exchange,
+                      correlation=correlation, origin=origin)
 
 
-def _lda_pz81_polarized(n_up: Array, n_down: Array) -> tuple[Array, Array, Array]:
-    eps_x, vx_up, vx_down = slater_exchange_polarized(n_up, n_down)
-    eps_c, vc_up, vc_down = pz81_correlation_polarized(n_up, n_down)
-    return eps_x + eps_c, vx_up + vc_up, vx_down + vc_down
+#: Slater (Dirac) exchange as a part of the combined functionals.
+SLATER_EXCHANGE = Functional("slater-exchange", "Slater (Dirac) exchange",
+                             slater_exchange, slater_exchange_polarized)
 
-
-def _lda_pw92(n: Array) -> tuple[Array, Array]:
-    eps_x, v_x = slater_exchange(n)
-    eps_c, v_c = pw92_correlation(n)
-    return eps_x + eps_c, v_x + v_c
-
-
-def _lda_pw92_polarized(n_up: Array, n_down: Array) -> tuple[Array, Array, Array]:
-    eps_x, vx_up, vx_down = slater_exchange_polarized(n_up, n_down)
-    eps_c, vc_up, vc_down = pw92_correlation_polarized(n_up, n_down)
-    return eps_x + eps_c, vx_up + vc_up, vx_down + vc_down
-
-
-_REGISTRY: dict[str, Functional] = {
-    f.name: f for f in (
-        Functional("lda-pz81",
-                   "LDA: Slater exchange + Perdew-Zunger 1981 correlation",
-                   _lda_pz81, _lda_pz81_polarized),
-        Functional("lda-pw92",
-                   "LDA: Slater exchange + Perdew-Wang 1992 correlation",
-                   _lda_pw92, _lda_pw92_polarized),
-        Functional("slater-exchange",
-                   "Slater exchange only, no correlation",
-                   slater_exchange, slater_exchange_polarized),
-    )
+_CORRELATIONS = {
+    "lda-pz81": Functional(
+        "pz81-correlation", "Perdew-Zunger 1981 correlation (fit to Ceperley-Alder)",
+        pz81_correlation, pz81_correlation_polarized),
+    "lda-pw92": Functional(
+        "pw92-correlation", "Perdew-Wang 1992 correlation",
+        pw92_correlation, pw92_correlation_polarized),
+    "lda-vwn": Functional(
+        "vwn-correlation", "Vosko-Wilk-Nusair 1980 correlation (fit to Ceperley-Alder)",
+        vwn_correlation, vwn_correlation_polarized),
+    "lda-wigner": Functional(
+        "wigner-correlation", "Wigner 1934 correlation, independent of spin polarisation",
+        wigner_correlation, wigner_correlation_polarized),
+    "lda-hedin-lundqvist": Functional(
+        "hedin-lundqvist-correlation",
+        "Hedin-Lundqvist 1971 correlation, spin-scaled ferromagnetic branch",
+        hedin_lundqvist_correlation, hedin_lundqvist_correlation_polarized),
+    "lda-von-barth-hedin": Functional(
+        "von-barth-hedin-correlation", "von Barth-Hedin 1972 correlation",
+        von_barth_hedin_correlation, von_barth_hedin_correlation_polarized),
 }
 
-#: Registry names accepted by :func:`get_functional`.
+_REGISTRY: dict[str, Functional] = {
+    name: combine_exchange_correlation(
+        name, f"LDA: Slater exchange + {part.description}",
+        SLATER_EXCHANGE, part)
+    for name, part in _CORRELATIONS.items()
+}
+_REGISTRY["slater-exchange"] = Functional(
+    "slater-exchange", "Slater exchange only, no correlation", slater_exchange,
+    slater_exchange_polarized, exchange=SLATER_EXCHANGE)
+
+#: Registry names of the built-in functionals accepted by :func:`get_functional`.
 FUNCTIONALS: tuple[str, ...] = tuple(_REGISTRY)
+
+#: Prefix of a functional specification naming a Python file, ``"file:/path/x.py"``.
+FILE_PREFIX = "file:"
+
+# Functionals registered at run time under a name of their own (register_functional).
+_USER_REGISTRY: dict[str, Functional] = {}
+
+
+def _normalized(name: str) -> str:
+    return name.strip().lower()
+
+
+def available_functionals() -> tuple[str, ...]:
+    """Built-in names followed by the names registered with :func:`register_functional`."""
+    return FUNCTIONALS + tuple(_USER_REGISTRY)
+
+
+def register_functional(functional: Functional, *, replace: bool = False) -> Functional:
+    """Make ``functional`` available to :func:`get_functional` under its name.
+
+    Parameters
+    ----------
+    functional : Functional
+        E.g. from :func:`pwsolid.xc.load_user_functional`. Its name (case and
+        surrounding blanks ignored) must not be a built-in name nor start with
+        ``"file:"``.
+    replace : bool
+        Replace an earlier registration of the same name instead of refusing it.
+
+    Returns
+    -------
+    Functional
+        The functional, for chaining.
+
+    Raises
+    ------
+    pwsolid.errors.InputError
+        For a clash with a built-in or (without ``replace``) a registered name.
+    """
+    if not isinstance(functional, Functional):
+        raise InputError("register_functional takes a Functional", key=_KEY,
+                         value=functional, has_value=True)
+    key = _normalized(functional.name)
+    if not key or key.startswith(FILE_PREFIX) or any(c.isspace() for c in key):
+        raise InputError("a functional's name must be non-empty, without blanks and not "
+                         f"start with '{FILE_PREFIX}'", key=_KEY, value=functional.name)
+    if key in _REGISTRY:
+        raise InputError("this name belongs to a built-in functional; choose another",
+                         key=_KEY, value=functional.name)
+    if key in _USER_REGISTRY and not replace and _USER_REGISTRY[key] is not functional:
+        raise InputError("a functional of this name is already registered; pass "
+                         "replace=True to replace it", key=_KEY, value=functional.name)
+    _USER_REGISTRY[key] = functional
+    return functional
+
+
+def unregister_functional(name: str) -> None:
+    """Remove a functional added with :func:`register_functional` (no error if absent)."""
+    _USER_REGISTRY.pop(_normalized(name), None)
 
 
 def get_functional(spec: str | UnpolarizedKernel | Functional) -> Functional:
-    """Look up a functional by name, or wrap a user callable.
+    """Look up a functional by name or file, or wrap a user callable.
 
     Parameters
     ----------
     spec : str, callable or Functional
-        A name of :data:`FUNCTIONALS` (case and surrounding blanks ignored); a
-        callable ``f(n) -> (eps_xc, v_xc)`` in hartree, wrapped without a
-        spin-polarised form; or a :class:`Functional`, returned unchanged.
+        A name of :data:`FUNCTIONALS` or one registered with
+        :func:`register_functional` (case and surrounding blanks ignored);
+        ``"file:/path/to/functional.py"``, a Python file loaded with
+        :func:`pwsolid.xc.load_user_functional` (this runs the file's code; a
+        relative path is taken from the working directory, so callers holding an
+        input file resolve it against that file first); a callable
+        ``f(n) -> (eps_xc, v_xc)`` in hartree, wrapped without a spin-polarised
+        form; or a :class:`Functional`, returned unchanged.
 
     Returns
     -------
@@ -177,22 +303,30 @@ def get_functional(spec: str | UnpolarizedKernel | Functional) -> Functional:
     Raises
     ------
     pwsolid.errors.InputError
-        For an unknown name (the message lists the valid ones) or a value that is
-        neither a name nor a callable.
+        For an unknown name (the message lists the valid ones), a file that does
+        not load, or a value that is neither a name nor a callable.
     """
     if isinstance(spec, Functional):
         return spec
     if isinstance(spec, str):
-        found = _REGISTRY.get(spec.strip().lower())
+        text = spec.strip()
+        if text.lower().startswith(FILE_PREFIX):
+            from .user import load_user_functional   # user imports this module
+
+            return load_user_functional(text[len(FILE_PREFIX):].strip())
+        key = _normalized(text)
+        found = _REGISTRY.get(key) or _USER_REGISTRY.get(key)
         if found is None:
             raise InputError("unknown exchange-correlation functional; valid names are "
-                             + ", ".join(repr(name) for name in FUNCTIONALS),
+                             + ", ".join(repr(name) for name in available_functionals())
+                             + f", or '{FILE_PREFIX}path/to/functional.py'",
                              key=_KEY, value=spec)
         return found
     if callable(spec):
         name = getattr(spec, "__name__", None) or type(spec).__name__
-        return Functional(str(name), "user-supplied callable f(n) -> (eps_xc, v_xc)", spec)
+        return Functional(str(name), "user-supplied callable f(n) -> (eps_xc, v_xc)", spec,
+                          origin="callable")
     raise InputError("expected a functional name (one of "
-                     + ", ".join(repr(name) for name in FUNCTIONALS)
+                     + ", ".join(repr(name) for name in available_functionals())
                      + ") or a callable f(n) -> (eps_xc, v_xc)", key=_KEY, value=spec,
                      has_value=True)

@@ -206,7 +206,9 @@ def test_mismatched_spin_shapes_are_rejected():
 # --- registry --------------------------------------------------------------------
 
 def test_registry_names():
-    assert xc.FUNCTIONALS == ("lda-pz81", "lda-pw92", "slater-exchange")
+    assert xc.FUNCTIONALS == ("lda-pz81", "lda-pw92", "lda-vwn", "lda-wigner",
+                              "lda-hedin-lundqvist", "lda-von-barth-hedin",
+                              "slater-exchange")
     for name in xc.FUNCTIONALS:
         functional = xc.get_functional(name)
         assert isinstance(functional, xc.Functional)

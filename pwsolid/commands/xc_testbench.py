@@ -1,0 +1,161 @@
+"""``pwsolid xc-testbench``: exchange-correlation functionals on the uniform gas (layer 6).
+
+For each functional named (registry names, ``file:path.py``, or ``--user-file``),
+prints its energies per electron at a few densities, its correlation against the
+reference parametrisations and the Ceperley-Alder quantum Monte Carlo data, and
+the pass/fail list of exact conditions; writes the report as JSON and the plots
+as PNG and SVG. A failed condition is a finding: the exit code is 0 whenever the
+report was made, 3 for bad input (an unknown name, a file that does not load).
+"""
+
+from __future__ import annotations
+
+import re
+import textwrap
+from pathlib import Path
+
+from ..errors import EXIT_OK, InputError
+from ..units import HARTREE_EV
+
+__all__ = ["register", "run"]
+
+_DEFAULT_FUNCTIONAL = "lda-pz81"
+_DEFAULT_COMPARE = "lda-pw92,lda-vwn"
+_DEFAULT_RS = "1,2,5,10,20"
+_WIDTH = 96
+
+
+def register(subparsers) -> None:
+    """Add the ``xc-testbench`` sub-command."""
+    parser = subparsers.add_parser(
+        "xc-testbench",
+        help="test exchange-correlation functionals on the uniform electron gas",
+        description="Evaluate exchange-correlation functionals for the uniform electron "
+                    "gas: energies per electron, differences to other parametrisations "
+                    "and to the Ceperley-Alder quantum Monte Carlo data, and exact "
+                    "conditions. Writes a JSON report and plots per functional. Exit "
+                    "code 0 even when a condition fails; 3 for bad input.")
+    parser.add_argument("functionals", nargs="*", metavar="FUNCTIONAL",
+                        help="registry name or file:path/to/functional.py "
+                             f"(default {_DEFAULT_FUNCTIONAL} when no --user-file is given)")
+    parser.add_argument("--user-file", action="append", default=[], metavar="FILE",
+                        help="Python functional file to test (repeatable); it is executed")
+    parser.add_argument("--compare", default=_DEFAULT_COMPARE, metavar="NAMES",
+                        help="comma-separated reference functionals "
+                             f"(default {_DEFAULT_COMPARE}; empty for none)")
+    parser.add_argument("--output-dir", default="xc-testbench", metavar="DIR",
+                        help="where the JSON reports and plots go (default ./xc-testbench)")
+    parser.add_argument("--rs", default=_DEFAULT_RS, metavar="VALUES",
+                        help=f"comma-separated rs values (bohr) of the printed table "
+                             f"(default {_DEFAULT_RS})")
+    parser.add_argument("--no-plots", action="store_true", help="write the JSON reports only")
+    parser.set_defaults(handler=run)
+
+
+def _numbers(text: str, option: str) -> list[float]:
+    try:
+        values = [float(item) for item in text.split(",") if item.strip()]
+    except ValueError:
+        values = []
+    if not values or any(not v > 0 for v in values):
+        raise InputError("expected comma-separated positive numbers, e.g. 1,2,5",
+                         key=option, value=text)
+    return values
+
+
+def _slug(name: str) -> str:
+    # No dots: the stem gets .json/.png/.svg suffixes.
+    return re.sub(r"[^A-Za-z0-9_-]+", "-", name).strip("-") or "functional"
+
+
+def _signed(value: float | None, digits: int = 3) -> str:
+    return "n/a" if value is None or value != value else f"{value:+.{digits}f}"
+
+
+def _table_lines(report, rs_printed: list[float]) -> list[str]:
+    table = report.table
+    refs = report.references
+    head = (f"  {'rs/bohr':>8} {'zeta':>5} {'exchange':>11} {'correlation':>12} "
+            f"{'total':>11} {'total/eV':>10}" + "".join(f" {'vs ' + r:>18}" for r in refs))
+    lines = ["  Energies per electron in Ha (total also in eV); correlation minus each "
+             "reference in mHa", head]
+    for rs in rs_printed:
+        i = int(abs(table.rs - rs).argmin())
+        for j, zeta in enumerate(table.zeta):
+            if zeta not in (0.0, 1.0):
+                continue
+            total = table.total[0, i, j]
+            if total != total:       # no spin-polarised form
+                continue
+            row = (f"  {table.rs[i]:>8.2f} {zeta:>5.0f} {table.exchange[0, i, j]:>11.7f} "
+                   f"{table.correlation[0, i, j]:>12.7f} {total:>11.7f} "
+                   f"{total * HARTREE_EV:>10.4f}")
+            row += "".join(f" {_signed(1e3 * report.differences[r][i, j]):>18}" for r in refs)
+            lines.append(row)
+    return lines
+
+
+def _monte_carlo_lines(report) -> list[str]:
+    lines = ["  Correlation against Ceperley & Alder, Phys. Rev. Lett. 45, 566 (1980), in mHa",
+             f"  {'rs/bohr':>8} {'zeta':>5} {'QMC':>16} {'functional':>11} {'difference':>11}"]
+    for p in report.monte_carlo:
+        qmc = f"{1e3 * p.monte_carlo:.2f} +- {1e3 * p.monte_carlo_error:.1g}"
+        value = "n/a" if p.functional is None else f"{1e3 * p.functional:.2f}"
+        diff = None if p.difference is None else 1e3 * p.difference
+        lines.append(f"  {p.rs:>8.0f} {p.zeta:>5.0f} {qmc:>16} {value:>11} "
+                     f"{_signed(diff, 2):>11}")
+    return lines
+
+
+def _condition_lines(report) -> list[str]:
+    counts = {s: sum(c.status == s for c in report.conditions)
+              for s in ("pass", "fail", "not applicable")}
+    lines = [f"  Exact conditions: {counts['pass']} pass, {counts['fail']} fail, "
+             f"{counts['not applicable']} not applicable"]
+    marks = {"pass": "PASS", "fail": "FAIL", "not applicable": "n/a "}
+    for c in report.conditions:
+        lines.append(f"    {marks[c.status]}  {c.name}")
+        lines += textwrap.wrap(c.detail, width=_WIDTH, initial_indent=" " * 10,
+                               subsequent_indent=" " * 10)
+    return lines
+
+
+def run(args) -> int:
+    """Run the testbench for the functionals in ``args``; return the exit code."""
+    from ..results import write_json
+    from ..workflows.uniform_gas import DEFAULT_RS, DEFAULT_ZETA, testbench_report
+    from ..xc import get_functional, load_user_functional
+
+    rs_printed = _numbers(args.rs, "--rs")
+    compare = [name.strip() for name in args.compare.split(",") if name.strip()]
+    references = [get_functional(name) for name in compare]
+    subjects = [get_functional(spec) for spec in args.functionals]
+    subjects += [load_user_functional(path) for path in args.user_file]
+    if not subjects:
+        subjects = [get_functional(_DEFAULT_FUNCTIONAL)]
+    rs_table = sorted(set(DEFAULT_RS) | set(rs_printed))
+    output = Path(args.output_dir)
+
+    for functional in subjects:
+        report = testbench_report(functional, references, rs_values=rs_table,
+                                  zeta_values=DEFAULT_ZETA)
+        print(f"Uniform-gas testbench: {functional.name}")
+        print(f"  {functional.description}")
+        if functional.origin != "built-in":
+            print(f"  from {functional.origin}")
+        print()
+        for block in (_table_lines(report, rs_printed), _monte_carlo_lines(report),
+                      _condition_lines(report)):
+            print("\n".join(block))
+            print()
+        stem = output / f"{_slug(functional.name)}-uniform-gas"
+        json_path = stem.with_suffix(".json")
+        write_json(json_path, report.as_document())
+        written = [json_path]
+        if not args.no_plots:
+            from ..plots.xc import UniformGasPlot
+
+            written += UniformGasPlot.from_report(report).save(stem)
+        print("  Written: " + ", ".join(str(p) for p in written))
+        print()
+    return EXIT_OK
