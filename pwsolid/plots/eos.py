@@ -1,0 +1,141 @@
+"""Energy against volume with the fitted equations of state (layer 6).
+
+:class:`EquationOfStatePlot` holds the numbers of a
+:class:`~pwsolid.workflows.equation_of_state.VolumeScan` ready to draw: the
+computed energies per atom relative to the preferred fit's minimum (meV/atom)
+against the volume per cell (angstrom^3), a curve per fitted form, and beneath,
+on the same volume axis, each form's residuals. A c/a scan gets a third panel
+with the optimal c/a. Points added by range extensions are drawn hollow.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from ..units import BOHR_ANGSTROM, HARTREE_EV
+from . import PALETTE, new_axes, save_figure
+
+__all__ = ["EquationOfStatePlot"]
+
+
+def _dotted_stem(stem) -> Path:
+    # save_figure names its files stem.with_suffix(".png"), which would swallow the last
+    # part of a dotted stem ("si.eos" -> "si.png"); a placeholder suffix keeps it.
+    stem = Path(stem)
+    return stem.with_name(stem.name + ".figure") if stem.suffix else stem
+
+
+_MEV = HARTREE_EV * 1e3
+_A3 = BOHR_ANGSTROM ** 3
+_LABELS = {"birch-murnaghan": "Birch-Murnaghan", "vinet": "Vinet", "murnaghan": "Murnaghan",
+           "polynomial": "polynomial in V^(-2/3)"}
+
+
+def _formula(crystal) -> str:
+    counts = [(s, crystal.species.count(s)) for s in crystal.unique_species]
+    return "".join(f"{s}{n if n > 1 else ''}" for s, n in counts)
+
+
+@dataclass(frozen=True)
+class EquationOfStatePlot:
+    """Data of an E(V) figure (angstrom^3 and meV/atom), drawn by :meth:`plot`."""
+
+    volumes: np.ndarray                 # angstrom^3 per cell, the E(V) data
+    energies: np.ndarray                # meV/atom relative to the preferred E0
+    extended: np.ndarray                # bool: added by a range extension
+    curves: dict                        # form -> (volumes, energies) dense, same units
+    residuals: dict                     # form -> residuals, meV/atom, at ``volumes``
+    preferred: str
+    v0: float                           # angstrom^3, preferred form
+    summary: str                        # one line: V0, lattice, B0, B0'
+    title: str = ""
+    c_over_a: np.ndarray | None = None  # optimal c/a per volume (c/a scans)
+    extras: dict = field(default_factory=dict)
+
+    @classmethod
+    def from_scan(cls, scan, title: str = "") -> "EquationOfStatePlot":
+        """Take what the figure needs from a VolumeScan."""
+        n = scan.crystal.n_atoms
+        e_ref = scan.e0
+        v = np.asarray(scan.volumes, float)
+        stage_of = {}
+        for p in scan.points:
+            stage_of.setdefault(round(p.volume, 8), p.stage)
+        extended = np.array([stage_of.get(round(x, 8), 0) > 0 for x in v])
+        lo, hi = v.min(), v.max()
+        pad = 0.04 * (hi - lo)
+        dense = np.linspace(lo - pad, hi + pad, 240)
+        curves, residuals = {}, {}
+        for name, fit in scan.fits.items():
+            curves[name] = (dense * _A3, (np.asarray(fit.energy(dense)) - e_ref) * _MEV / n)
+            # EOSFit residuals are fitted minus computed, at its (sorted) volumes
+            residuals[name] = np.interp(v, fit.volumes, fit.residuals) * _MEV / n
+        lat = scan.lattice_constants
+        lat_text = ", ".join(f"{k} = {x * BOHR_ANGSTROM:.4f} Å" for k, x in lat.items())
+        summary = (f"{_LABELS.get(scan.preferred_form, scan.preferred_form)}: "
+                   f"V0 = {scan.v0 * _A3:.3f} Å³, {lat_text}, B0 = {scan.b0_gpa:.1f} GPa, "
+                   f"B0' = {scan.b0_prime:.2f}")
+        if not title:
+            title = f"{_formula(scan.crystal)}: energy against volume"
+        return cls(volumes=v * _A3, energies=(np.asarray(scan.energies) - e_ref) * _MEV / n,
+                   extended=extended, curves=curves, residuals=residuals,
+                   preferred=scan.preferred_form, v0=scan.v0 * _A3, summary=summary,
+                   title=title,
+                   c_over_a=None if scan.optimal_c_over_a is None
+                   else np.asarray(scan.optimal_c_over_a, float))
+
+    def plot(self, axes=None):
+        """Draw into ``axes`` (a sequence of 2, or 3 for c/a scans) or a new figure; returns it."""
+        rows = 3 if self.c_over_a is not None else 2
+        if axes is None:
+            ratios = [3.0, 1.3] + ([1.3] if rows == 3 else [])
+            fig, axes = new_axes(rows, 1, sharex=True, figsize=(6.4, 4.2 + 1.3 * (rows - 1)),
+                                 gridspec_kw={"height_ratios": ratios, "hspace": 0.08})
+        else:
+            fig = axes[0].figure
+        main, resid = axes[0], axes[1]
+        colours = {name: PALETTE[i % len(PALETTE)] for i, name in enumerate(self.curves)}
+        for name, (vx, ey) in self.curves.items():
+            main.plot(vx, ey, color=colours[name], lw=2.2 if name == self.preferred else 1.2,
+                      ls="-" if name == self.preferred else (0, (4, 2)),
+                      label=_LABELS.get(name, name), zorder=2)
+        ink = "#2b2f36"
+        planned = ~self.extended
+        main.scatter(self.volumes[planned], self.energies[planned], s=30, color=ink, zorder=3,
+                     label="computed")
+        if np.any(self.extended):
+            main.scatter(self.volumes[self.extended], self.energies[self.extended], s=30,
+                         facecolor="none", edgecolor=ink, zorder=3, label="computed (extension)")
+        for ax in axes:
+            ax.axvline(self.v0, color="#8a8477", lw=0.9, ls=":", zorder=1)
+        main.set_ylabel("E - E0 (meV/atom)")
+        main.set_title(self.title, loc="left", pad=22)
+        main.text(0.0, 1.03, self.summary, transform=main.transAxes, ha="left", va="bottom",
+                  fontsize=8.2, color=ink,
+                  bbox={"boxstyle": "round,pad=0.3", "facecolor": "#f1eee4",
+                        "edgecolor": "#d8d2c2"})
+        main.legend(loc="best", fontsize=8)
+        offsets = np.linspace(-1, 1, max(len(self.residuals), 1)) * 0.004 * np.ptp(self.volumes)
+        for off, (name, r) in zip(offsets, self.residuals.items()):
+            resid.plot(self.volumes + off, r, marker="o", ms=3.2, lw=0.8, color=colours[name])
+        resid.axhline(0.0, color=ink, lw=0.8)
+        resid.set_ylabel("fit - computed\n(meV/atom)")
+        if self.c_over_a is not None:
+            ax = axes[2]
+            ax.plot(self.volumes, self.c_over_a, marker="s", ms=3.5, color=PALETTE[4])
+            ax.set_ylabel("optimal c/a")
+        axes[-1].set_xlabel("volume per cell (Å³)")
+        return fig
+
+    def save(self, stem, formats=("png", "svg")):
+        """Draw a new figure and write ``stem.<format>`` for each format; returns the paths."""
+        fig = self.plot()
+        try:
+            return save_figure(fig, _dotted_stem(stem), formats)
+        finally:
+            import matplotlib.pyplot as plt
+
+            plt.close(fig)
