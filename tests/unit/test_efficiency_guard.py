@@ -10,9 +10,12 @@ preconditioner, worse mixing) costs far more than that.
 from pwsolid.scf import ground_state
 from pwsolid.settings import GroundStateSettings
 
+from conftest import LOCAL_SILICON
+
 
 def test_scf_iterations_and_hamiltonian_applications_stay_low(silicon):
-    gs = ground_state(silicon, GroundStateSettings(cutoff=8.0, kpoint_mesh=(2, 2, 2)))
+    gs = ground_state(silicon, GroundStateSettings(cutoff=8.0, kpoint_mesh=(2, 2, 2),
+                                                   pseudopotentials=LOCAL_SILICON))
     assert gs.converged
     assert gs.iterations <= 11
     assert gs.applications_per_band <= 40

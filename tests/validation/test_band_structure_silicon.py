@@ -29,7 +29,8 @@ from pwsolid.workflows.density_of_states import density_of_states
 pytestmark = pytest.mark.slow
 
 SILICON = diamond(5.431 / BOHR_ANGSTROM, "Si")
-SETTINGS = GroundStateSettings(cutoff=10.0, kpoint_mesh=(4, 4, 4), kpoint_shift=(0, 0, 0))
+SETTINGS = GroundStateSettings(cutoff=10.0, kpoint_mesh=(4, 4, 4), kpoint_shift=(0, 0, 0),
+                               pseudopotentials={"Si": "Si-appelbaum-hamann.toml"})
 
 
 @pytest.fixture(scope="module")
