@@ -65,7 +65,24 @@ def _command_modules():
 
 
 def main(argv: list[str] | None = None) -> int:
-    """Run the command line with ``argv`` (default ``sys.argv[1:]``); return the exit code."""
+    """Run the command line with ``argv`` (default ``sys.argv[1:]``); return the exit code.
+
+    Under an MPI launcher every process runs the same command; only rank 0 prints and
+    writes files (the others send their output to the null device).
+    """
+    from .parallel import world
+
+    if world().rank != 0:
+        import contextlib
+        import os
+
+        with open(os.devnull, "w") as null, contextlib.redirect_stdout(null), \
+                contextlib.redirect_stderr(null):
+            return _main(argv, writes=False)
+    return _main(argv, writes=True)
+
+
+def _main(argv, writes: bool) -> int:
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
@@ -74,6 +91,7 @@ def main(argv: list[str] | None = None) -> int:
     if args.command is None:
         parser.print_help()
         return EXIT_USAGE
+    args.writes_files = writes
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ConvergenceWarning)
@@ -118,8 +136,9 @@ def _ground_state(args) -> int:
         f"cutoff {run.settings.cutoff:g} Ha, k-mesh {'x'.join(map(str, run.settings.kpoint_mesh))}")
     gs = ground_state(c, run.settings, log=say)
     doc = ground_state_document(gs, input_echo=run.echo, title=run.title)
-    write_json(result_file, doc)
-    save_density(density_file, gs)
+    if args.writes_files:
+        write_json(result_file, doc)
+        save_density(density_file, gs)
     print(_summary(doc))
     print(f"Result written to {result_file}\nDensity written to {density_file}")
     if not gs.converged:

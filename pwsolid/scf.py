@@ -27,7 +27,8 @@ from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, kinetic_preconditioner, local_potential
 from .kpoints import KPointSet, irreducible_kpoints
 from .mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
-from .parallel import fft_threads_for, single_threaded_blas
+from .parallel import (SerialCommunicator, distribute, fft_threads_for, single_threaded_blas,
+                       world)
 from .occupations import (TOP_BAND_CHARGE_LIMIT, BandEdges, SmearingResult, aufbau_occupations,
                           band_edges, highest_band_charge, smeared_occupations, smearing_scheme)
 from .pseudo import nonlocal_operator
@@ -97,14 +98,22 @@ class SystemSetup:
     n_bands: int
     symmetrize: Callable | None
     nonlocal_ops: list = field(default_factory=list)   # per k: (P, D) or (None, None)
+    comm: object = field(default_factory=SerialCommunicator)  # see pwsolid.parallel
+    owned: tuple = ()                                  # k-point indices this process solves
 
     @property
     def volume(self) -> float:
         return self.crystal.volume
 
 
-def prepare(crystal: Crystal, settings: GroundStateSettings | None = None) -> SystemSetup:
-    """Build the fixed set-up of a ground-state calculation."""
+def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
+            comm=None) -> SystemSetup:
+    """Build the fixed set-up of a ground-state calculation.
+
+    ``comm`` (default: :func:`pwsolid.parallel.world`) spreads the k-points over MPI
+    processes; every process holds the whole density and all eigenvalues.
+    """
+    comm = comm if comm is not None else world()
     settings = settings or GroundStateSettings()
     pps = load_pseudopotentials(crystal.species, settings.pseudopotentials)
     functional = _xc.get_functional(settings.functional)
@@ -146,7 +155,8 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None) -> Sy
         symmetrize = make_density_symmetrizer(kpts.operations, grid, sphere)
     return SystemSetup(crystal, settings, pps, functional, symmetry, kpts, tuple(grid), fft,
                        bases, g2, v_loc_g, v_loc_r, ewald, n_el, n_bands, symmetrize,
-                       [_nonlocal(crystal, pps, b) for b in bases])
+                       [_nonlocal(crystal, pps, b) for b in bases], comm,
+                       tuple(distribute([b.size for b in bases], comm.size, comm.rank)))
 
 
 @dataclass
@@ -266,18 +276,13 @@ def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
     fresh = state.wavefunctions is None
     if fresh:
         v_eff_g = setup.fft.field_to_reciprocal(v_eff)
-        state.wavefunctions = [_initial_guess(b, v_eff_g, nb, setup.grid_shape, *ops)
-                               for b, ops in zip(setup.bases, setup.nonlocal_ops)]
-    eigs = np.empty((len(setup.bases), nb))
-    applications = 0
-    for ik, basis in enumerate(setup.bases):
-        ham = KPointHamiltonian(basis, setup.fft, v_eff, *setup.nonlocal_ops[ik])
-        result = davidson(ham.apply, kinetic_preconditioner(basis.kinetic),
-                          state.wavefunctions[ik], tolerance=tol, max_iterations=4 if not fresh else 30)
-        state.wavefunctions[ik] = result.vectors
-        eigs[ik] = result.eigenvalues
-        applications += result.n_applications
-        state.blas_seconds += result.seconds_blas
+        state.wavefunctions = [None] * len(setup.bases)
+        for ik in setup.owned:
+            state.wavefunctions[ik] = _initial_guess(setup.bases[ik], v_eff_g, nb,
+                                                     setup.grid_shape, *setup.nonlocal_ops[ik])
+    # All bands converge together: converging only the charged ones and polishing the
+    # empty ones at the end cost more SCF iterations than it saved (measured on silicon).
+    eigs, applications = _solve_bands(setup, state, v_eff, tol, 30 if fresh else 4, nb)
     smear = _occupations(setup, eigs)
     occ = smear.occupations if smear is not None else aufbau_occupations(
         len(setup.bases), nb, setup.n_electrons)
@@ -323,12 +328,35 @@ def _mixer(setup: SystemSetup) -> PulayMixer:
     return PulayMixer(s.mixing_weight, s.mixing_history, preconditioner=pre)
 
 
+def _solve_bands(setup: SystemSetup, state: SCFState, v_eff: np.ndarray, tol: float,
+                 max_iterations: int, n_converge: int) -> tuple[np.ndarray, int]:
+    """Davidson at every owned k-point, warm-started from ``state.wavefunctions``;
+    the lowest ``n_converge`` bands must meet ``tol``."""
+    nb = setup.n_bands
+    eigs = np.zeros((len(setup.bases), nb))
+    applications = 0
+    for ik in setup.owned:
+        basis = setup.bases[ik]
+        ham = KPointHamiltonian(basis, setup.fft, v_eff, *setup.nonlocal_ops[ik])
+        result = davidson(ham.apply, kinetic_preconditioner(basis.kinetic),
+                          state.wavefunctions[ik], tolerance=tol, max_iterations=max_iterations,
+                          n_converge=n_converge)
+        state.wavefunctions[ik] = result.vectors
+        eigs[ik] = result.eigenvalues
+        applications += result.n_applications
+        state.blas_seconds += result.seconds_blas
+    return setup.comm.allreduce_sum(eigs), setup.comm.allreduce_sum(applications)
+
+
 def _density(setup: SystemSetup, wavefunctions, occupations) -> np.ndarray:
     n = np.zeros(setup.grid_shape)
-    for basis, c, f, w in zip(setup.bases, wavefunctions, occupations, setup.kpoints.weights):
+    weights = setup.kpoints.weights
+    for ik in setup.owned:
+        f = occupations[ik]
         sel = np.abs(f) > 1e-14      # smeared occupations may be slightly negative
-        setup.fft.accumulate_density(c[sel], basis.grid_index, w * f[sel], n)
-    n /= setup.volume
+        setup.fft.accumulate_density(wavefunctions[ik][sel], setup.bases[ik].grid_index,
+                                     weights[ik] * f[sel], n)
+    n = setup.comm.allreduce_sum(n) / setup.volume
     if setup.symmetrize is not None:
         n = setup.symmetrize(n)
     return n
@@ -338,16 +366,20 @@ def _energy(setup: SystemSetup, wavefunctions, occupations, density) -> EnergyTe
     n_g = setup.fft.field_to_reciprocal(density)
     e_loc, e_g0 = local_energy(setup.v_loc_g, n_g, setup.volume)
     eps, _ = setup.functional.evaluate(density)
+    own = setup.owned
+    mine = [wavefunctions[i] for i in own]
+    occ, w = occupations[list(own)], setup.kpoints.weights[list(own)]
+    band_terms = setup.comm.allreduce_sum(np.array([
+        kinetic_energy(mine, [setup.bases[i].kinetic for i in own], occ, w),
+        nonlocal_energy(mine, [setup.nonlocal_ops[i] for i in own], occ, w)]))
     return EnergyTerms(
-        kinetic=kinetic_energy(wavefunctions, [b.kinetic for b in setup.bases], occupations,
-                               setup.kpoints.weights),
+        kinetic=float(band_terms[0]),
         local_pseudopotential=e_loc,
         hartree=hartree_energy(n_g, setup.g2, setup.volume),
         exchange_correlation=xc_energy(density, eps, setup.volume),
         ewald=setup.ewald,
         pseudopotential_g0=e_g0,
-        nonlocal_pseudopotential=nonlocal_energy(wavefunctions, setup.nonlocal_ops, occupations,
-                                                 setup.kpoints.weights),
+        nonlocal_pseudopotential=float(band_terms[1]),
     )
 
 

@@ -14,6 +14,7 @@ from types import SimpleNamespace
 import numpy as np
 import pytest
 
+from conftest import LOCAL_SILICON
 from pwsolid.crystal import (body_centred_cubic, diamond, face_centred_cubic,
                              hexagonal_close_packed, rocksalt, simple_cubic)
 from pwsolid.eos import birch_murnaghan_energy
@@ -25,7 +26,7 @@ from pwsolid.workflows.equation_of_state import (ScanPoint, WarmStart, lattice_l
 from pwsolid.workflows.structures import compare_structures
 
 E0, V0, B0, B0P = -7.9, 270.0, 0.0033, 4.2
-SETTINGS = GroundStateSettings(cutoff=5.0, kpoint_mesh=(2, 2, 2), kpoint_shift=(0, 0, 0))
+SETTINGS = GroundStateSettings(cutoff=5.0, kpoint_mesh=(2, 2, 2), kpoint_shift=(0, 0, 0), pseudopotentials=LOCAL_SILICON)
 
 
 def _a_for_volume(v):
