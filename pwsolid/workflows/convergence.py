@@ -391,7 +391,8 @@ def converge_settings(crystal: Crystal, settings: GroundStateSettings | None = N
 
 def _single(crystal, s, solver) -> dict:
     out = solver(crystal, s, None)
-    return {"energy": float(out.total_energy), "converged": bool(out.converged),
+    energy = getattr(out, "zero_width_energy", out.total_energy)   # metals: sigma -> 0 estimate
+    return {"energy": float(energy), "converged": bool(out.converged),
             "iterations": int(out.iterations)}
 
 

@@ -97,7 +97,8 @@ class WarmStart:
 class PointSolver(Protocol):
     """``solver(crystal, settings, warm_start) -> outcome`` for one scan point.
 
-    The outcome needs ``total_energy`` (Ha), ``converged`` (bool), ``iterations``
+    The outcome needs ``total_energy`` (Ha; a ``zero_width_energy``, when present,
+    is used instead: with smearing it is the energy at vanishing width), ``converged`` (bool), ``iterations``
     (int) and ``density`` (array or None; kept to warm-start the next point);
     optionally ``messages`` (tuple of str). A :class:`pwsolid.scf.GroundState`
     has them all. Tests pass a cheap model energy here instead of the SCF.
@@ -747,7 +748,9 @@ def scan_volumes(crystal: Crystal, settings: GroundStateSettings | None = None, 
         for m in getattr(outcome, "messages", ()) or ():
             if m not in notes:
                 notes.append(str(m))
-        p = ScanPoint(v, q, float(outcome.total_energy), bool(outcome.converged),
+        # metals: the zero-width estimate is the energy to compare volumes with
+        energy = getattr(outcome, "zero_width_energy", outcome.total_energy)
+        p = ScanPoint(v, q, float(energy), bool(outcome.converged),
                       int(outcome.iterations), time.perf_counter() - t0, stage=stage,
                       notes=tuple(notes))
         if not math.isfinite(p.energy):
