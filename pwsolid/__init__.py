@@ -24,7 +24,13 @@ from .scf import GroundState, ground_state, prepare
 from .settings import GroundStateSettings
 from .symmetry import SymmetryOperations, find_symmetry
 from .units import BOHR_ANGSTROM, HARTREE_EV, parse_quantity
-from .xc import FUNCTIONALS, get_functional
+from .eos import EOSFit, fit_all_forms, fit_equation_of_state
+from .workflows import (BandStructure, ConvergenceStudy, DOSResult, StructureComparison,
+                        UniformGasReport, VolumeScan, band_structure, compare_structures,
+                        converge_settings, density_of_states, empirical_band_structure,
+                        scan_volumes, testbench_report, uniform_gas_table)
+from .xc import FUNCTIONALS, get_functional, load_user_functional
+from .xc.conditions import check_exact_conditions
 
 
 def angstrom(value: float) -> float:
@@ -46,5 +52,9 @@ __all__ = [
     "load_pseudopotential", "ground_state_document", "write_json", "save_density",
     "load_density", "FUNCTIONALS", "get_functional", "InputError", "ConvergenceWarning",
     "ConvergenceError", "PwsolidError", "parse_quantity", "angstrom", "electronvolt",
-    "HARTREE_EV", "BOHR_ANGSTROM",
+    "HARTREE_EV", "BOHR_ANGSTROM", "EOSFit", "fit_equation_of_state", "fit_all_forms",
+    "scan_volumes", "VolumeScan", "converge_settings", "ConvergenceStudy", "compare_structures",
+    "StructureComparison", "band_structure", "empirical_band_structure", "BandStructure",
+    "density_of_states", "DOSResult", "testbench_report", "uniform_gas_table", "UniformGasReport",
+    "load_user_functional", "check_exact_conditions",
 ]

@@ -1,0 +1,19 @@
+"""Workflows: sequences of ground states (layer 5).
+
+Equation-of-state scans, convergence studies, structure comparisons, band
+structures, densities of states and the uniform-gas testbench.
+"""
+
+from .band_structure import BandStructure, band_structure, empirical_band_structure
+from .convergence import ConvergenceStudy, converge_settings
+from .density_of_states import DOSResult, density_of_states
+from .equation_of_state import VolumeScan, scan_volumes
+from .structures import StructureComparison, compare_structures
+from .uniform_gas import UniformGasReport, testbench_report, uniform_gas_table
+
+__all__ = [
+    "BandStructure", "band_structure", "empirical_band_structure", "ConvergenceStudy",
+    "converge_settings", "DOSResult", "density_of_states", "VolumeScan", "scan_volumes",
+    "StructureComparison", "compare_structures", "UniformGasReport", "testbench_report",
+    "uniform_gas_table",
+]
