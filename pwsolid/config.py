@@ -597,9 +597,27 @@ class _Reader:
                     parsed = None     # an echo of an automatic grid
                 else:
                     parsed = self._triple(value, dotted, integers=spec.kind != "numbers3")
+                if spec.field == "functional":
+                    parsed = self._functional(parsed, dotted)
                 kwargs[spec.field] = parsed
                 echo[section][key] = list(value) if isinstance(value, tuple) else value
         return kwargs, echo
+
+    def _functional(self, name: str, key: str) -> str:
+        """Check a functional name now; resolve ``file:`` paths against the input's folder."""
+        from .xc import get_functional
+
+        if name.startswith("file:"):
+            path = Path(name[5:]).expanduser()
+            if not path.is_absolute():
+                path = (self.base_dir / path).resolve()
+            name = f"file:{path}"
+        try:
+            get_functional(name)
+        except InputError as exc:
+            raise InputError(exc.reason, key=key, source=self.source,
+                             value=exc.value if exc.value is not None else name) from None
+        return name
 
     def _pseudopotentials(self, table: Mapping, crystal: Crystal) -> tuple[dict, dict]:
         present = crystal.unique_species
