@@ -15,7 +15,7 @@ from pathlib import Path
 
 from ._version import __version__
 from .errors import (EXIT_INTERNAL, EXIT_INVALID_INPUT, EXIT_NOT_CONVERGED, EXIT_OK, EXIT_USAGE,
-                     ConvergenceWarning, InputError)
+                     ConvergenceError, ConvergenceWarning, InputError)
 from .units import HARTREE_EV
 
 __all__ = ["main", "main_entry", "build_parser"]
@@ -36,6 +36,11 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("input", nargs="?", help="TOML input file (default: the bundled demo)")
     run.add_argument("--result-file", help="where to write the JSON result (overrides the input)")
     run.add_argument("--density-file", help="where to write the density (overrides the input)")
+    run.add_argument("--checkpoint-file", help="SCF checkpoint for resuming (overrides the input)")
+    run.add_argument("--fresh", action="store_true",
+                     help="ignore an existing checkpoint and start from scratch")
+    run.add_argument("--overwrite", action="store_true",
+                     help="replace a finished result document")
     run.add_argument("--quiet", action="store_true", help="print only the summary")
 
     check = sub.add_parser("check-input", help="validate an input file without running it")
@@ -100,6 +105,9 @@ def _main(argv, writes: bool) -> int:
     except InputError as exc:
         print(f"pwsolid: invalid input: {exc}", file=sys.stderr)
         return EXIT_INVALID_INPUT
+    except ConvergenceError as exc:
+        print(f"pwsolid: not converged: {exc}", file=sys.stderr)
+        return EXIT_NOT_CONVERGED
     except KeyboardInterrupt:
         print("pwsolid: interrupted", file=sys.stderr)
         return 130
@@ -110,11 +118,19 @@ def _main(argv, writes: bool) -> int:
 
 
 def main_entry() -> None:
-    """Console-script entry point."""
+    """Console-script entry point; SIGTERM is handled like Ctrl-C (checkpoint kept)."""
+    import signal
+
+    def _terminate(signum, frame):
+        raise KeyboardInterrupt
+
+    signal.signal(signal.SIGTERM, _terminate)
     sys.exit(main())
 
 
 def _ground_state(args) -> int:
+    import json
+
     from .config import load_input
     from .resources import demo_input
     from .results import ground_state_document, save_density, write_json
@@ -124,27 +140,66 @@ def _ground_state(args) -> int:
     if not args.input:
         print(f"No input file given: running the bundled demo {path.name}")
     run = load_input(path)
-    result_file, density_file = run.result_file, run.density_file
+    files = {"result": run.result_file, "density": run.density_file,
+             "checkpoint": run.checkpoint_file}
     if not args.input:   # never write into the installed package: use the working directory
-        result_file, density_file = Path(result_file.name), Path(density_file.name)
-    result_file = Path(args.result_file) if args.result_file else result_file
-    density_file = Path(args.density_file) if args.density_file else density_file
+        files = {k: Path(v.name) for k, v in files.items()}
+    for key, option in (("result", args.result_file), ("density", args.density_file),
+                        ("checkpoint", args.checkpoint_file)):
+        if option:
+            files[key] = Path(option)
+    if files["result"].exists() and not (args.overwrite or not args.input):
+        try:
+            finished = json.loads(files["result"].read_text()).get("converged") is True
+        except (OSError, ValueError):
+            finished = False
+        if finished:
+            raise InputError(f"{files['result']} holds a finished result; pass --overwrite to "
+                             "replace it or --result-file to write elsewhere",
+                             key="output.result_file", value=str(files["result"]))
+    if args.fresh and files["checkpoint"].exists() and args.writes_files:
+        files["checkpoint"].unlink()
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
     c = run.crystal
     say(f"{run.title or path.name}")
     say(f"  {c.n_atoms} atoms ({', '.join(c.species)}), volume {c.volume:.4f} bohr^3, "
         f"cutoff {run.settings.cutoff:g} Ha, k-mesh {'x'.join(map(str, run.settings.kpoint_mesh))}")
-    gs = ground_state(c, run.settings, log=say)
+    _note_low_cutoff(run)
+    try:
+        gs = ground_state(c, run.settings, log=say,
+                          checkpoint=files["checkpoint"] if args.writes_files else None,
+                          checkpoint_every=run.checkpoint_interval)
+    except KeyboardInterrupt:
+        where = files["checkpoint"]
+        hint = (f"the last completed iteration is saved in {where}; run the same command to "
+                "continue" if where.exists() else "no iteration was completed")
+        print(f"pwsolid: interrupted; {hint}", file=sys.stderr)
+        return 130
     doc = ground_state_document(gs, input_echo=run.echo, title=run.title)
     if args.writes_files:
-        write_json(result_file, doc)
-        save_density(density_file, gs)
+        write_json(files["result"], doc)
+        save_density(files["density"], gs)
+        if gs.converged and files["checkpoint"].exists():
+            files["checkpoint"].unlink()     # the result and the density are final
     print(_summary(doc))
-    print(f"Result written to {result_file}\nDensity written to {density_file}")
+    print(f"Result written to {files['result']}\nDensity written to {files['density']}")
     if not gs.converged:
-        print("pwsolid: " + gs.messages[0], file=sys.stderr)
+        print("pwsolid: " + gs.messages[-1], file=sys.stderr)
         return EXIT_NOT_CONVERGED
     return EXIT_OK
+
+
+def _note_low_cutoff(run) -> None:
+    """Say when the cutoff is below what a pseudopotential file recommends."""
+    from .scf import load_pseudopotentials
+
+    for species, pp in load_pseudopotentials(run.crystal.species,
+                                             run.settings.pseudopotentials).items():
+        if pp.suggested_cutoff and run.settings.cutoff < pp.suggested_cutoff:
+            print(f"note: basis.cutoff = {run.settings.cutoff:g} Ha is below the "
+                  f"{pp.suggested_cutoff:g} Ha that {Path(str(pp.source_file)).name} recommends "
+                  f"for {species}; converge the cutoff before trusting absolute numbers "
+                  "(pwsolid converge-settings)", file=sys.stderr)
 
 
 def _summary(doc: dict) -> str:

@@ -138,6 +138,10 @@ def _build_schema() -> dict[str, dict[str, _Key]]:
         "output": {
             "result_file": _Key("file", "JSON result document", default="<input stem>.result.json"),
             "density_file": _Key("file", "density checkpoint", default="<input stem>.density.npz"),
+            "checkpoint_file": _Key("file", "SCF checkpoint for resuming an interrupted run",
+                                    default="<input stem>.checkpoint.npz"),
+            "checkpoint_interval": _Key("integer", "write the SCF checkpoint every this many "
+                                        "iterations", default="1"),
         },
     }
     for fname, (kind, unit, text) in _SETTINGS_DESCRIPTIONS.items():
@@ -218,6 +222,10 @@ class RunInput:
         Free text from the input.
     result_file, density_file : Path
         Where the result document and the density checkpoint go.
+    checkpoint_file : Path
+        The SCF checkpoint (resume file) of this run.
+    checkpoint_interval : int
+        Iterations between checkpoint writes.
     source : Path or None
         The input file, if the input came from one.
     echo : dict
@@ -232,6 +240,8 @@ class RunInput:
     density_file: Path
     source: Path | None
     echo: dict
+    checkpoint_file: Path | None = None
+    checkpoint_interval: int = 1
 
 
 # -- reading -------------------------------------------------------------
@@ -357,12 +367,21 @@ class _Reader:
         output = document.get("output", {})
         result_file = self._output_path(output, "result_file", f"{stem}.result.json")
         density_file = self._output_path(output, "density_file", f"{stem}.density.npz")
+        checkpoint_file = self._output_path(output, "checkpoint_file", f"{stem}.checkpoint.npz")
+        interval = 1
+        if "checkpoint_interval" in output:
+            interval = self._integer(output["checkpoint_interval"], "output.checkpoint_interval")
+            if not 1 <= interval <= 10000:
+                self.fail("must be between 1 and 10000", "output.checkpoint_interval", interval)
         full_echo = {"title": title, "crystal": crystal_echo, "pseudopotentials": pseudo_echo,
                      **echo, "output": {"result_file": str(result_file),
-                                        "density_file": str(density_file)}}
+                                        "density_file": str(density_file),
+                                        "checkpoint_file": str(checkpoint_file),
+                                        "checkpoint_interval": interval}}
         return RunInput(crystal=crystal, settings=settings, title=title,
                         result_file=result_file, density_file=density_file,
-                        source=Path(self.source) if self.source else None, echo=full_echo)
+                        source=Path(self.source) if self.source else None, echo=full_echo,
+                        checkpoint_file=checkpoint_file, checkpoint_interval=interval)
 
     def _unknown_top(self, name: str):
         home = [f"{s}.{name}" for s, keys in _SCHEMA.items() if name in keys]

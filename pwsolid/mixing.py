@@ -155,6 +155,19 @@ class PulayMixer:
         self._inputs.clear()
         self._residuals.clear()
 
+    def history_arrays(self) -> tuple[np.ndarray, np.ndarray]:
+        """The stored (inputs, residuals), shape (m, n) each, for checkpoints."""
+        if not self._inputs:
+            return np.zeros((0, 0)), np.zeros((0, 0))
+        return np.array(self._inputs), np.array(self._residuals)
+
+    def restore_history(self, inputs: np.ndarray, residuals: np.ndarray) -> None:
+        """Continue from a saved history (the most recent rows last)."""
+        self.reset()
+        for x, r in zip(inputs, residuals):
+            self._inputs.append(np.array(x, float))
+            self._residuals.append(np.array(r, float))
+
     def _coefficients(self, res: np.ndarray) -> np.ndarray:
         """Pulay coefficients (summing to 1) for residuals res (m, n), newest last.
 

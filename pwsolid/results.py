@@ -9,17 +9,14 @@ they are read with ``allow_pickle=False``.
 
 from __future__ import annotations
 
-import hashlib
 import json
-import os
 import platform
-import tempfile
 from pathlib import Path
 
 import numpy as np
 
 from ._version import __version__
-from .errors import InputError
+from .safe_files import atomic_write_bytes, read_archive, write_archive
 from .scf import GroundState
 from .units import BOHR_ANGSTROM, HARTREE_EV
 
@@ -137,31 +134,6 @@ def _occupation_block(gs: GroundState) -> dict:
     }
 
 
-def atomic_write_bytes(path, data: bytes) -> None:
-    """Write a file so that readers see either the old or the complete new content."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        with _suppress():
-            os.unlink(tmp)
-        raise
-
-
-class _suppress:
-    def __enter__(self):
-        return self
-
-    def __exit__(self, *exc):
-        return True
-
-
 def write_json(path, document: dict) -> None:
     """Write a JSON document atomically (NaN and infinities refused)."""
     text = json.dumps(document, indent=2, allow_nan=False, default=_json_default)
@@ -178,21 +150,8 @@ def _json_default(obj):
     raise TypeError(f"cannot store {type(obj).__name__} in JSON")
 
 
-def _checksum(arrays: dict) -> str:
-    h = hashlib.sha256()
-    for name in sorted(arrays):
-        a = np.ascontiguousarray(arrays[name])
-        h.update(name.encode())
-        h.update(str(a.dtype).encode())
-        h.update(str(a.shape).encode())
-        h.update(a.tobytes())
-    return h.hexdigest()
-
-
 def save_density(path, gs: GroundState) -> None:
     """Save the self-consistent density with what identifies it (atomically)."""
-    import io
-
     arrays = {
         "density": np.asarray(gs.density, float),
         "lattice_bohr": gs.crystal.lattice,
@@ -201,38 +160,18 @@ def save_density(path, gs: GroundState) -> None:
         "fft_grid": np.array(gs.setup.grid_shape),
         "n_electrons": np.array(gs.setup.n_electrons),
     }
-    meta = {"format": DENSITY_FORMAT, "species": list(gs.crystal.species),
-            "functional": str(gs.settings.as_dict()["functional"]),
-            "checksum": _checksum(arrays)}
-    buf = io.BytesIO()
-    np.savez_compressed(buf, metadata=np.array(json.dumps(meta)), **arrays)
-    atomic_write_bytes(path, buf.getvalue())
+    write_archive(path, DENSITY_FORMAT, arrays,
+                  {"species": list(gs.crystal.species),
+                   "functional": str(gs.settings.as_dict()["functional"])})
 
 
 def load_density(path) -> dict:
     """Read a density checkpoint, verifying its format version and checksum.
 
-    Returns a dict with the arrays and ``species``. Raises InputError for a
-    missing, corrupted or foreign file.
+    Returns a dict with the arrays, ``species`` and ``functional``. Raises
+    InputError for a missing, corrupted or foreign file.
     """
-    src = str(path)
-    try:
-        with np.load(path, allow_pickle=False) as data:
-            arrays = {k: data[k] for k in data.files}
-    except FileNotFoundError:
-        raise InputError("density file not found", source=src) from None
-    except Exception as exc:  # noqa: BLE001 - zip, format and OS errors all mean 'unreadable'
-        raise InputError(f"not a readable density file ({type(exc).__name__}: {exc})",
-                         source=src) from None
-    try:
-        meta = json.loads(str(arrays.pop("metadata")))
-    except (KeyError, ValueError):
-        raise InputError("not a pwsolid density file (no metadata)", source=src) from None
-    if meta.get("format") != DENSITY_FORMAT:
-        raise InputError(f"unsupported density format {meta.get('format')!r}; "
-                         f"this version reads {DENSITY_FORMAT}", source=src)
-    if _checksum(arrays) != meta.get("checksum"):
-        raise InputError("the density file is corrupted (checksum mismatch)", source=src)
-    arrays["species"] = meta["species"]
+    arrays, meta = read_archive(path, DENSITY_FORMAT, "density file")
+    arrays["species"] = meta.get("species", [])
     arrays["functional"] = meta.get("functional")
     return arrays

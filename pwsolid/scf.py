@@ -22,7 +22,8 @@ from .crystal import Crystal
 from .eigensolver import davidson, dense_lowest_eigenpairs
 from .electrostatics import ewald_energy, hartree_energy, hartree_potential
 from .energies import EnergyTerms, kinetic_energy, local_energy, nonlocal_energy, xc_energy
-from .errors import ConvergenceWarning, InputError
+from .checkpoint import load_checkpoint, save_checkpoint
+from .errors import ConvergenceError, ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, kinetic_preconditioner, local_potential
 from .kpoints import KPointSet, irreducible_kpoints
@@ -446,7 +447,8 @@ class GroundState:
 
 def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, *,
                  log: Log | None = None, initial_density: np.ndarray | None = None,
-                 setup: SystemSetup | None = None) -> GroundState:
+                 setup: SystemSetup | None = None, checkpoint=None,
+                 checkpoint_every: int = 1) -> GroundState:
     """Self-consistent Kohn-Sham ground state of a crystal.
 
     Parameters
@@ -461,18 +463,89 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
         Starting density on the FFT grid (default: uniform).
     setup
         A prepared set-up to reuse (must match crystal and settings).
+    checkpoint
+        Path of a checkpoint file. If it exists and belongs to this calculation the
+        run continues from it; it is rewritten every ``checkpoint_every`` iterations
+        (atomically), so an interrupted or killed run resumes with the same call.
+        A checkpoint of another calculation, or a corrupted one, raises InputError.
 
     Returns
     -------
     GroundState
         With ``converged`` False (and a ConvergenceWarning) if the tolerances
         were not met within ``max_iterations``.
+
+    Notes
+    -----
+    When the SCF stalls (the density residual has not halved in six iterations),
+    documented remedies are tried in turn before giving up, each recorded in the
+    result's messages: (1) halve the mixing weight and double the Pulay history;
+    (2) halve it again and switch the Kerker preconditioner on.
+
+    Raises
+    ------
+    ConvergenceError
+        When the eigensolver breaks down (non-finite values, loss of orthogonality).
     """
     with single_threaded_blas():
-        return _ground_state(crystal, settings, log, initial_density, setup)
+        try:
+            return _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
+                                 max(1, int(checkpoint_every)))
+        except (FloatingPointError, np.linalg.LinAlgError) as exc:
+            raise ConvergenceError(
+                f"the eigensolver broke down ({exc}); lower self_consistency.mixing_weight or "
+                "raise basis.cutoff") from None
 
 
-def _ground_state(crystal, settings, log, initial_density, setup) -> GroundState:
+_STALL_WINDOW = 6
+
+
+def _stalled(history: list) -> bool:
+    """No halving of the density residual over the last few iterations."""
+    if len(history) < 2 * _STALL_WINDOW:
+        return False
+    recent = min(h["density_residual"] for h in history[-_STALL_WINDOW:])
+    before = min(h["density_residual"] for h in history[:-_STALL_WINDOW])
+    return recent > 0.5 * before
+
+
+def _remedy(setup: SystemSetup, mixer: PulayMixer, step: int):
+    """The ``step``-th remedy for a stalled SCF: (new mixer, description) or None."""
+    s = setup.settings
+    if step == 0:
+        new = PulayMixer(mixer.weight / 2, min(2 * s.mixing_history, 40),
+                         preconditioner=mixer.preconditioner)
+        return new, (f"mixing weight {mixer.weight:g} -> {new.weight:g}, Pulay history "
+                     f"{s.mixing_history} -> {min(2 * s.mixing_history, 40)}")
+    if step == 1:
+        q0 = s.screening_wavevector or thomas_fermi_wavevector(setup.n_electrons / setup.volume)
+        new = PulayMixer(mixer.weight / 2, min(2 * s.mixing_history, 40),
+                         preconditioner=kerker_preconditioner(setup.g2, q0))
+        return new, f"mixing weight {mixer.weight:g} -> {new.weight:g} with Kerker preconditioning"
+    return None
+
+
+def _resume(setup: SystemSetup, state: SCFState, mixer: PulayMixer, path) -> None:
+    """Continue from a checkpoint (refused with InputError if it is not this calculation's)."""
+    arrays, meta = load_checkpoint(path, setup)
+    state.density = arrays["density"]
+    state.iteration = int(meta["iteration"])
+    state.applications = int(meta.get("applications", 0))
+    state.history = list(meta.get("history", []))
+    if len(arrays["mixer_inputs"]):
+        mixer.restore_history(arrays["mixer_inputs"], arrays["mixer_residuals"])
+    nk = len(setup.bases)
+    if all(f"wavefunctions_{ik}" in arrays for ik in range(nk)) and setup.comm.size == 1:
+        waves = [arrays[f"wavefunctions_{ik}"] for ik in range(nk)]
+        if all(w.shape == (setup.n_bands, b.size) for w, b in zip(waves, setup.bases)):
+            state.wavefunctions = waves
+            state.eigenvalues = arrays.get("eigenvalues")
+    if state.history:
+        state.residual = float(state.history[-1]["density_residual"])
+
+
+def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
+                  checkpoint_every) -> GroundState:
     t_start = time.perf_counter()
     setup = setup or prepare(crystal, settings)
     s = setup.settings
@@ -487,10 +560,17 @@ def _ground_state(crystal, settings, log, initial_density, setup) -> GroundState
     mixer = _mixer(setup)
     state = SCFState(density=density)
     emit = log or (lambda line: None)
+    messages = []
+    if checkpoint is not None and Path(checkpoint).exists():
+        _resume(setup, state, mixer, checkpoint)
+        messages.append(f"resumed from {checkpoint} after iteration {state.iteration}")
+        emit(f"resuming from {checkpoint} after iteration {state.iteration}")
     label = "free energy (Ha)" if s.smearing != "none" else "total energy (Ha)"
     emit(f"{'iter':>4} {label:>20} {'change (Ha)':>12} {'density res.':>12} "
          f"{'H/band':>7} {'seconds':>8}")
     converged = False
+    remedies = 0
+    stall_base = len(state.history)
     while state.iteration < s.max_iterations:
         t0 = time.perf_counter()
         state = scf_step(setup, state)
@@ -504,13 +584,25 @@ def _ground_state(crystal, settings, log, initial_density, setup) -> GroundState
                 and state.residual < s.density_tolerance):
             converged = True
             break
+        if _stalled(state.history[stall_base:]):
+            fix = _remedy(setup, mixer, remedies)
+            if fix is not None:
+                mixer, what = fix
+                remedies += 1
+                stall_base = len(state.history)
+                note = f"SCF stalled at iteration {state.iteration}; remedy {remedies}: {what}"
+                messages.append(note)
+                emit(note)
         shape = state.density.shape
         state.density = mixer.mix(state.density.ravel(), state.output_density.ravel()).reshape(shape)
-    messages = []
+        if checkpoint is not None and setup.comm.rank == 0 and state.iteration % checkpoint_every == 0:
+            save_checkpoint(checkpoint, setup, state, mixer)
     if not converged:
-        msg = (f"SCF not converged after {state.iteration} iterations (last energy change "
-               f"{state.history[-1]['energy_change_Ha']}, density residual {state.residual:.2e}); "
-               "raise self_consistency.max_iterations or lower self_consistency.mixing_weight")
+        tried = f" after {remedies} remedies (see above)" if remedies else ""
+        msg = (f"SCF not converged after {state.iteration} iterations{tried} (last energy "
+               f"change {state.history[-1]['energy_change_Ha']}, density residual "
+               f"{state.residual:.2e}); raise self_consistency.max_iterations, lower "
+               "self_consistency.mixing_weight, or for a metal set occupations.smearing")
         messages.append(msg)
         warnings.warn(msg, ConvergenceWarning, stacklevel=2)
     edges = None

@@ -22,6 +22,8 @@ prototype = "diamond"
 lattice_constant = "5.05 angstrom"
 species = ["Si"]
 {extra_crystal}
+[pseudopotentials]
+Si = "Si-appelbaum-hamann.toml"
 [basis]
 cutoff = "5 Ha"
 [brillouin_zone]

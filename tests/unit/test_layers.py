@@ -7,11 +7,11 @@ import pwsolid
 
 PACKAGE = Path(pwsolid.__file__).parent
 LAYERS = {
-    0: {"units", "errors", "resources", "_version", "progress"},
+    0: {"units", "errors", "resources", "_version", "progress", "safe_files"},
     1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos"},
     2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath"},
     3: {"pseudo", "electrostatics", "hamiltonian", "energies"},
-    4: {"scf", "parallel", "settings"},
+    4: {"scf", "parallel", "settings", "checkpoint"},
     5: {"workflows"},
     6: {"config", "results", "plots", "cli", "commands"},
 }

@@ -1,0 +1,132 @@
+"""Faults: interrupted runs resume, checkpoints are checked, results are not clobbered,
+a stalled SCF tries its remedies and then says what to change."""
+
+import json
+import os
+import signal
+import subprocess
+import sys
+import time
+import warnings
+
+import numpy as np
+import pytest
+
+import pwsolid
+from pwsolid.checkpoint import save_checkpoint
+from pwsolid.cli import main
+from pwsolid.errors import EXIT_INVALID_INPUT, EXIT_NOT_CONVERGED, EXIT_OK
+
+SETTINGS = pwsolid.GroundStateSettings(cutoff=8.0, kpoint_mesh=(2, 2, 2))
+INPUT = """
+title = "Brightfilm resume drill"
+[crystal]
+prototype = "diamond"
+lattice_constant = "5.43 angstrom"
+species = "Si"
+[basis]
+cutoff = "{cutoff} Ha"
+[brillouin_zone]
+mesh = [{mesh}, {mesh}, {mesh}]
+"""
+
+
+@pytest.fixture
+def silicon_small():
+    return pwsolid.diamond(pwsolid.angstrom(5.431), "Si")
+
+
+def test_interrupted_run_resumes_to_the_same_energy(silicon_small, tmp_path):
+    # Resume invariance: continuing from the checkpoint of iteration 3 must reach the
+    # uninterrupted run's energy to 1e-8 Ha (here: the same iterations, bit for bit).
+    reference = pwsolid.ground_state(silicon_small, SETTINGS)
+    ckpt = tmp_path / "si.checkpoint.npz"
+
+    def interrupt_at_four(line):
+        if line.startswith("   4 "):
+            raise KeyboardInterrupt
+
+    with pytest.raises(KeyboardInterrupt):
+        pwsolid.ground_state(silicon_small, SETTINGS, log=interrupt_at_four, checkpoint=ckpt)
+    assert ckpt.exists()
+    resumed = pwsolid.ground_state(silicon_small, SETTINGS, checkpoint=ckpt)
+    assert resumed.converged
+    assert abs(resumed.total_energy - reference.total_energy) < 1e-8
+    assert any("resumed" in m for m in resumed.messages)
+
+
+def test_foreign_or_corrupted_checkpoints_are_refused(silicon_small, tmp_path):
+    ckpt = tmp_path / "c.npz"
+    with pytest.raises(KeyboardInterrupt):
+        pwsolid.ground_state(silicon_small, SETTINGS, checkpoint=ckpt,
+                             log=lambda line: (_ for _ in ()).throw(KeyboardInterrupt)
+                             if line.startswith("   2 ") else None)
+    with pytest.raises(pwsolid.InputError, match="cutoff_Ha"):
+        pwsolid.ground_state(silicon_small, SETTINGS.replace(cutoff=9.0), checkpoint=ckpt)
+    raw = bytearray(ckpt.read_bytes())
+    raw[len(raw) // 3] ^= 0x55
+    ckpt.write_bytes(bytes(raw))
+    with pytest.raises(pwsolid.InputError, match="c.npz"):
+        pwsolid.ground_state(silicon_small, SETTINGS, checkpoint=ckpt)
+
+
+def test_finished_results_are_not_overwritten_unless_asked(tmp_path, capsys):
+    path = tmp_path / "run.toml"
+    path.write_text(INPUT.format(cutoff=5, mesh=2))
+    assert main(["ground-state", str(path), "--quiet"]) == EXIT_OK
+    assert not (tmp_path / "run.checkpoint.npz").exists()     # removed once final
+    assert main(["ground-state", str(path), "--quiet"]) == EXIT_INVALID_INPUT
+    assert "--overwrite" in capsys.readouterr().err
+    assert main(["ground-state", str(path), "--quiet", "--overwrite"]) == EXIT_OK
+
+
+def test_a_stalled_scf_tries_remedies_then_says_what_to_change(silicon_small):
+    # A density tolerance below round-off can never be met: the residual stalls, the
+    # documented remedies are tried in turn, and the run ends unconverged with advice.
+    # (At 1e-15 the first remedy alone gets there: a smaller weight and a longer
+    # history take the residual from a 1e-9 plateau to 1e-15.)
+    s = SETTINGS.replace(density_tolerance=1e-18, energy_tolerance=1e-18, max_iterations=50)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", pwsolid.ConvergenceWarning)
+        gs = pwsolid.ground_state(silicon_small, s)
+    assert not gs.converged
+    remedies = [m for m in gs.messages if "remedy" in m]
+    assert len(remedies) == 2
+    assert "mixing weight 0.6 -> 0.3" in remedies[0] and "Kerker" in remedies[1]
+    assert "self_consistency.max_iterations" in gs.messages[-1]
+
+
+def test_not_converged_result_is_marked_and_exit_code_is_four(tmp_path):
+    path = tmp_path / "short.toml"
+    path.write_text(INPUT.format(cutoff=5, mesh=2) + "[self_consistency]\nmax_iterations = 3\n")
+    assert main(["ground-state", str(path), "--quiet"]) == EXIT_NOT_CONVERGED
+    doc = json.loads((tmp_path / "short.result.json").read_text())
+    assert doc["converged"] is False and "max_iterations" in doc["messages"][-1]
+    assert (tmp_path / "short.checkpoint.npz").exists()    # kept: the run can continue
+
+
+@pytest.mark.slow
+def test_sigterm_keeps_the_checkpoint_and_the_same_command_finishes(tmp_path):
+    # A terminated process (SIGTERM, as a batch system sends) resumes with the same
+    # command and reaches the uninterrupted energy to 1e-8 Ha.
+    path = tmp_path / "long.toml"
+    path.write_text(INPUT.format(cutoff=14, mesh=6))
+    ckpt = tmp_path / "long.checkpoint.npz"
+    cmd = [sys.executable, "-m", "pwsolid.cli", "ground-state", str(path), "--quiet"]
+    env = dict(os.environ, PYTHONWARNINGS="ignore")
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+    deadline = time.time() + 120
+    while not ckpt.exists() and proc.poll() is None and time.time() < deadline:
+        time.sleep(0.02)
+    if proc.poll() is not None:
+        pytest.skip("the run finished before it could be interrupted (machine too fast)")
+    proc.send_signal(signal.SIGTERM)
+    _, err = proc.communicate(timeout=120)
+    assert proc.returncode == 130 and "run the same command" in err
+    assert ckpt.exists()
+    done = subprocess.run(cmd, capture_output=True, text=True, env=env, timeout=600)
+    assert done.returncode == 0, done.stderr
+    resumed = json.loads((tmp_path / "long.result.json").read_text())["energy"]["total_Ha"]
+    run = pwsolid.load_input(path)
+    reference = pwsolid.ground_state(run.crystal, run.settings).total_energy
+    assert abs(resumed - reference) < 1e-8
