@@ -443,7 +443,7 @@ def _fit_parametric(spec: EOSForm, v, e, max_evaluations) -> EOSFit:
         messages.append("a parameter ended on its bound (V0 > 0, B0 > 0, "
                         f"B0' > {spec.b0_prime_min:g}); the form does not fit these data")
 
-    n, dof = v.size, v.size - 4
+    dof = v.size - 4
     fitted = energy(v, e0, v0, b0, b0p)
     resid = np.asarray(fitted - e, dtype=float)
     errors, why = _standard_errors(res.jac, float(np.sum(res.fun ** 2)) / dof, scale)

@@ -35,7 +35,6 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
                           title: str = "") -> dict:
     """The JSON-ready result document of a ground state (schema ``RESULT_SCHEMA``)."""
     setup = gs.setup
-    edges = gs.band_edges
     kf = setup.kpoints.fractional
     energies = gs.energy.as_dict()
     doc = {

@@ -73,7 +73,8 @@ def new_axes(nrows: int = 1, ncols: int = 1, **kwargs):
 
 
 def save_figure(fig, stem, formats=("png", "svg")) -> list[Path]:
-    """Save ``fig`` as ``stem.<format>`` for each format; return the paths written.
+    """Save ``fig`` as ``<stem>.<format>`` for each format (``si.eos`` -> ``si.eos.png``);
+    return the paths written.
 
     Files are written to a temporary name first and renamed, so a crash never
     leaves a truncated figure.
@@ -86,7 +87,7 @@ def save_figure(fig, stem, formats=("png", "svg")) -> list[Path]:
     plt = _pyplot()
     with plt.rc_context(house_style()):
         for fmt in formats:
-            target = stem.with_suffix(f".{fmt}")
+            target = stem.with_name(f"{stem.name}.{fmt}")   # keeps dots in the stem
             tmp = target.with_name(f".{target.name}.part")
             fig.savefig(tmp, format=fmt, dpi=200, bbox_inches="tight")
             os.replace(tmp, target)

@@ -42,7 +42,7 @@ def _save(fig, stem, formats) -> list[Path]:
     try:
         written = []
         for fmt in formats:
-            written += save_figure(fig, Path(f"{stem}.{fmt}"), (fmt,))
+            written += save_figure(fig, stem, (fmt,))
         return written
     finally:
         _pyplot().close(fig)

@@ -13,7 +13,6 @@ change by construction and is marked on the axis instead of plotted.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
@@ -21,13 +20,6 @@ from ..units import BOHR_ANGSTROM, HARTREE_EV
 from . import PALETTE, new_axes, save_figure
 
 __all__ = ["ConvergencePlot"]
-
-
-def _dotted_stem(stem) -> Path:
-    # save_figure names its files stem.with_suffix(".png"), which would swallow the last
-    # part of a dotted stem ("si.eos" -> "si.png"); a placeholder suffix keeps it.
-    stem = Path(stem)
-    return stem.with_name(stem.name + ".figure") if stem.suffix else stem
 
 
 _INK = "#2b2f36"
@@ -159,7 +151,7 @@ class ConvergencePlot:
         """Draw a new figure and write ``stem.<format>`` for each format; returns the paths."""
         fig = self.plot()
         try:
-            return save_figure(fig, _dotted_stem(stem), formats)
+            return save_figure(fig, stem, formats)
         finally:
             import matplotlib.pyplot as plt
 

@@ -11,7 +11,6 @@ with the optimal c/a. Points added by range extensions are drawn hollow.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 
@@ -19,13 +18,6 @@ from ..units import BOHR_ANGSTROM, HARTREE_EV
 from . import PALETTE, new_axes, save_figure
 
 __all__ = ["EquationOfStatePlot"]
-
-
-def _dotted_stem(stem) -> Path:
-    # save_figure names its files stem.with_suffix(".png"), which would swallow the last
-    # part of a dotted stem ("si.eos" -> "si.png"); a placeholder suffix keeps it.
-    stem = Path(stem)
-    return stem.with_name(stem.name + ".figure") if stem.suffix else stem
 
 
 _MEV = HARTREE_EV * 1e3
@@ -134,7 +126,7 @@ class EquationOfStatePlot:
         """Draw a new figure and write ``stem.<format>`` for each format; returns the paths."""
         fig = self.plot()
         try:
-            return save_figure(fig, _dotted_stem(stem), formats)
+            return save_figure(fig, stem, formats)
         finally:
             import matplotlib.pyplot as plt
 
