@@ -46,6 +46,7 @@ def fingerprint(setup) -> dict:
         "smearing": [s.smearing, s.smearing_width, s.smearing_order],
         "bands": setup.n_bands,
         "background_electrons": s.background_electrons,
+        "spin": [bool(s.spin_polarized), s.fixed_magnetization],
         "pseudopotentials": pseudo,
     }
 
@@ -82,6 +83,7 @@ def load_checkpoint(path, setup) -> tuple[dict, dict]:
         raise InputError(
             f"the checkpoint belongs to a different calculation ({', '.join(differ)} differ); "
             "delete it or pass --fresh to start over", source=str(path))
-    if arrays["density"].shape != tuple(setup.grid_shape):
+    expected = tuple(setup.grid_shape) if setup.n_spin == 1 else (2, *setup.grid_shape)
+    if arrays["density"].shape != expected:
         raise InputError("the checkpoint's density is on another grid", source=str(path))
     return arrays, meta

@@ -89,7 +89,7 @@ _KIND_TEXT = {
 }
 
 _SETTINGS_SECTIONS = ("basis", "brillouin_zone", "exchange_correlation", "occupations",
-                      "self_consistency")
+                      "spin", "self_consistency")
 _SETTINGS_DESCRIPTIONS = {
     "cutoff": ("quantity", "energy", "plane-wave kinetic-energy cutoff |k+G|^2/2"),
     "fft_grid": ("grid", "", "force this FFT grid instead of the automatic choice"),
@@ -109,6 +109,11 @@ _SETTINGS_DESCRIPTIONS = {
     "smearing_width": ("quantity", "energy", "smearing width sigma"),
     "smearing_order": ("integer", "", "order of the Methfessel-Paxton scheme"),
     "mixing_preconditioner": ("name", "", "auto (Kerker with smearing), kerker or none"),
+    "spin_polarized": ("boolean", "", "collinear spin-polarised (LSDA) calculation"),
+    "starting_magnetization": ("number", "", "N_up - N_down of the starting density "
+                               "(electrons per cell)"),
+    "fixed_magnetization": ("number", "", "hold N_up - N_down at this value (automatic: the "
+                            "moment relaxes)"),
     "screening_wavevector": ("quantity", "inverse_length", "Kerker screening wave vector q0 "
                              "(automatic: Thomas-Fermi of the mean density)"),
 }

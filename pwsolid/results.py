@@ -36,6 +36,7 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
     """The JSON-ready result document of a ground state (schema ``RESULT_SCHEMA``)."""
     setup = gs.setup
     kf = setup.kpoints.fractional
+    nk = len(kf)
     energies = gs.energy.as_dict()
     doc = {
         "schema": RESULT_SCHEMA,
@@ -69,8 +70,9 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
             "weights": setup.kpoints.weights.tolist(),
             "full_mesh_size": int(setup.kpoints.full_mesh_size),
         },
-        "eigenvalues_eV": (gs.eigenvalues * HARTREE_EV).tolist(),
-        "occupations": gs.occupations.tolist(),
+        "eigenvalues_eV": (gs.eigenvalues[:nk] * HARTREE_EV).tolist(),
+        "occupations": gs.occupations[:nk].tolist(),
+        "spin": _spin_block(gs, nk),
         "basis": {
             "cutoff_Ha": setup.settings.cutoff,
             "plane_waves_per_kpoint": [b.size for b in setup.bases],
@@ -110,10 +112,25 @@ def _band_edges(gs: GroundState, kf: np.ndarray) -> dict | None:
         "lowest_unoccupied_eV": _ev(edges.lowest_unoccupied),
         "gap_eV": _ev(edges.gap),
         "gap_kind": None if edges.gap is None else ("direct" if edges.is_direct else "indirect"),
-        "highest_occupied_kpoint": kf[edges.highest_occupied_k].tolist(),
+        "highest_occupied_kpoint": kf[edges.highest_occupied_k % len(kf)].tolist(),
         "lowest_unoccupied_kpoint": (None if edges.lowest_unoccupied_k is None
-                                     else kf[edges.lowest_unoccupied_k].tolist()),
+                                     else kf[edges.lowest_unoccupied_k % len(kf)].tolist()),
         "note": "extrema over the k-points of the mesh only",
+    }
+
+
+def _spin_block(gs: GroundState, nk: int) -> dict:
+    """Spin-polarised runs: the moments and the down-spin eigenvalues (eigenvalues_eV and
+    occupations above are then the up-spin channel)."""
+    if gs.spin_densities is None:
+        return {"polarized": False}
+    return {
+        "polarized": True,
+        "magnetization": gs.magnetization,
+        "absolute_magnetization": gs.absolute_magnetization,
+        "fixed_magnetization": gs.settings.fixed_magnetization,
+        "eigenvalues_down_eV": (gs.eigenvalues[nk:] * HARTREE_EV).tolist(),
+        "occupations_down": gs.occupations[nk:].tolist(),
     }
 
 

@@ -100,7 +100,26 @@ class SystemSetup:
     symmetrize: Callable | None
     nonlocal_ops: list = field(default_factory=list)   # per k: (P, D) or (None, None)
     comm: object = field(default_factory=SerialCommunicator)  # see pwsolid.parallel
-    owned: tuple = ()                                  # k-point indices this process solves
+    owned: tuple = ()                                  # channel indices this process solves
+    n_spin: int = 1
+
+    @property
+    def grid_size(self) -> int:
+        return int(np.prod(self.grid_shape))
+
+    @property
+    def n_channels(self) -> int:
+        """Spin channels times k-points; channel j is spin j // n_k at k-point j % n_k."""
+        return self.n_spin * len(self.bases)
+
+    @property
+    def channel_weights(self) -> np.ndarray:
+        """Weight of each channel (sums to 1); occupations per state run from 0 to 2."""
+        return np.tile(self.kpoints.weights, self.n_spin) / self.n_spin
+
+    def channel(self, j: int) -> tuple[int, int]:
+        """(spin, k-point index) of channel j."""
+        return divmod(j, len(self.bases))
 
     @property
     def volume(self) -> float:
@@ -115,6 +134,7 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
     processes; every process holds the whole density and all eigenvalues.
     """
     comm = comm if comm is not None else world()
+    n_spin = 2 if (settings or GroundStateSettings()).spin_polarized else 1
     settings = settings or GroundStateSettings()
     pps = load_pseudopotentials(crystal.species, settings.pseudopotentials)
     functional = _xc.get_functional(settings.functional)
@@ -157,7 +177,8 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
     return SystemSetup(crystal, settings, pps, functional, symmetry, kpts, tuple(grid), fft,
                        bases, g2, v_loc_g, v_loc_r, ewald, n_el, n_bands, symmetrize,
                        [_nonlocal(crystal, pps, b) for b in bases], comm,
-                       tuple(distribute([b.size for b in bases], comm.size, comm.rank)))
+                       tuple(distribute([b.size for b in bases] * n_spin, comm.size, comm.rank)),
+                       n_spin)
 
 
 @dataclass
@@ -230,10 +251,19 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
 
 
 def _effective_potential(setup: SystemSetup, density: np.ndarray):
-    n_g = setup.fft.field_to_reciprocal(density)
+    """V_eff on the grid: shape (*grid) unpolarised, (2, *grid) for densities (up, down)."""
+    total = density if density.ndim == 3 else density.sum(axis=0)
+    n_g = setup.fft.field_to_reciprocal(total)
     v_h = setup.fft.field_to_real(hartree_potential(n_g, setup.g2)).real
-    eps, v_xc = setup.functional.evaluate(density)
-    return setup.v_loc_r + v_h + v_xc
+    if density.ndim == 3:
+        eps, v_xc = setup.functional.evaluate(density)
+        return setup.v_loc_r + v_h + v_xc
+    eps, v_up, v_down = setup.functional.evaluate_polarized(density[0], density[1])
+    return np.stack([setup.v_loc_r + v_h + v_up, setup.v_loc_r + v_h + v_down])
+
+
+def _channel_potential(v_eff: np.ndarray, spin: int) -> np.ndarray:
+    return v_eff if v_eff.ndim == 3 else v_eff[spin]
 
 
 def _initial_guess(basis: PlaneWaveBasis, potential_g: np.ndarray, n_bands: int,
@@ -276,46 +306,87 @@ def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
     nb = setup.n_bands
     fresh = state.wavefunctions is None
     if fresh:
-        v_eff_g = setup.fft.field_to_reciprocal(v_eff)
-        state.wavefunctions = [None] * len(setup.bases)
-        for ik in setup.owned:
-            state.wavefunctions[ik] = _initial_guess(setup.bases[ik], v_eff_g, nb,
-                                                     setup.grid_shape, *setup.nonlocal_ops[ik])
+        state.wavefunctions = [None] * setup.n_channels
+        for j in setup.owned:
+            spin, ik = setup.channel(j)
+            v_eff_g = setup.fft.field_to_reciprocal(_channel_potential(v_eff, spin))
+            state.wavefunctions[j] = _initial_guess(setup.bases[ik], v_eff_g, nb,
+                                                    setup.grid_shape, *setup.nonlocal_ops[ik])
     # All bands converge together: converging only the charged ones and polishing the
     # empty ones at the end cost more SCF iterations than it saved (measured on silicon).
     eigs, applications = _solve_bands(setup, state, v_eff, tol, 30 if fresh else 4, nb)
-    smear = _occupations(setup, eigs)
-    occ = smear.occupations if smear is not None else aufbau_occupations(
-        len(setup.bases), nb, setup.n_electrons)
+    smear, occ = _occupations(setup, eigs)
     n_out = _density(setup, state.wavefunctions, occ)
     energy = _energy(setup, state.wavefunctions, occ, n_out)
-    residual = float(np.mean(np.abs(n_out - state.density)) * setup.volume / setup.n_electrons)
+    residual = float(np.abs(n_out - state.density).sum() / setup.grid_size
+                     * setup.volume / setup.n_electrons)
     # With smearing the variational quantity is the free energy F = E - sigma S.
     free = energy.total + (smear.entropy_term if smear is not None else 0.0)
     previous = state.history[-1]["free_energy_Ha"] if state.history else None
     state.eigenvalues, state.occupations, state.output_density = eigs, occ, n_out
     state.energy, state.residual, state.smearing = energy, residual, smear
     state.applications += applications
+    if setup.n_spin == 2:
+        mag = (n_out[0] - n_out[1]) * setup.volume / n_out[0].size
+        extra = {"magnetization": float(mag.sum()), "absolute_magnetization": float(np.abs(mag).sum())}
+    else:
+        extra = {}
     state.history.append({
+        **extra,
         "iteration": state.iteration,
         "total_energy_Ha": energy.total,
         "free_energy_Ha": free,
         "energy_change_Ha": None if previous is None else free - previous,
         "density_residual": residual,
         "eigensolver_tolerance": tol,
-        "hamiltonian_applications_per_band": applications / (nb * len(setup.bases)),
+        "hamiltonian_applications_per_band": applications / (nb * setup.n_channels),
     })
     return state
 
 
-def _occupations(setup: SystemSetup, eigenvalues: np.ndarray) -> SmearingResult | None:
+def _occupations(setup: SystemSetup, eigenvalues: np.ndarray):
+    """(SmearingResult or None, occupations (n_channels, n_bands)), 0..2 per state.
+
+    Channel weights carry the 1/n_spin, so an occupation of 2 in a spin channel is one
+    electron per spin orbital times the k-weight. With a fixed magnetization each spin
+    channel gets its own Fermi level and N_sigma = (N +- M)/2 electrons.
+    """
     s = setup.settings
-    if s.smearing == "none":
-        return None
-    scheme = smearing_scheme(s.smearing, s.smearing_order if s.smearing == "methfessel-paxton"
-                             else None)
-    return smeared_occupations(eigenvalues, setup.kpoints.weights, setup.n_electrons, scheme,
-                               s.smearing_width)
+    nk = len(setup.bases)
+    scheme = None
+    if s.smearing != "none":
+        scheme = smearing_scheme(s.smearing, s.smearing_order if s.smearing == "methfessel-paxton"
+                                 else None)
+    if setup.n_spin == 2 and (s.fixed_magnetization is not None or scheme is None):
+        moment = s.fixed_magnetization or 0.0
+        counts = (0.5 * (setup.n_electrons + moment), 0.5 * (setup.n_electrons - moment))
+        parts = []
+        for spin, n_sigma in enumerate(counts):
+            block = eigenvalues[spin * nk:(spin + 1) * nk]
+            if n_sigma < 1e-12:                      # an empty spin channel
+                parts.append((None, np.zeros_like(block)))
+            elif scheme is None:
+                parts.append((None, aufbau_occupations(nk, setup.n_bands, 2 * n_sigma)))
+            else:
+                r = smeared_occupations(block, setup.kpoints.weights, 2 * n_sigma, scheme,
+                                        s.smearing_width)
+                parts.append((r, r.occupations))
+        occ = np.concatenate([p[1] for p in parts])
+        if scheme is None:
+            return None, occ
+        results = [p[0] for p in parts if p[0] is not None]
+        # each call counted both spins (factor 2): the physical entropy is half the sum;
+        # the reported Fermi level is the mean of the two channels' levels
+        combined = SmearingResult(occ, float(np.mean([r.fermi_level for r in results])),
+                                  0.5 * sum(r.entropy_term for r in results),
+                                  0.5 * sum(r.entropy for r in results), results[0].width,
+                                  scheme, 0.5 * sum(r.electron_count for r in results))
+        return combined, occ
+    if scheme is None:
+        return None, aufbau_occupations(nk, setup.n_bands, setup.n_electrons)
+    r = smeared_occupations(eigenvalues, setup.channel_weights, setup.n_electrons, scheme,
+                            s.smearing_width)
+    return r, r.occupations
 
 
 def _mixer(setup: SystemSetup) -> PulayMixer:
@@ -325,8 +396,21 @@ def _mixer(setup: SystemSetup) -> PulayMixer:
     pre = None
     if use_kerker:
         q0 = s.screening_wavevector or thomas_fermi_wavevector(setup.n_electrons / setup.volume)
-        pre = kerker_preconditioner(setup.g2, q0)
+        pre = _per_channel(kerker_preconditioner(setup.g2, q0), setup.n_spin)
     return PulayMixer(s.mixing_weight, s.mixing_history, preconditioner=pre)
+
+
+def _per_channel(precondition, n_spin: int):
+    """Extend a one-grid preconditioner to (up, down) residuals: it filters the total
+    density only; the magnetization passes unchanged, so the moment can still relax."""
+    if n_spin == 1:
+        return precondition
+
+    def apply(vector):
+        up, down = np.asarray(vector).reshape(2, -1)
+        total, moment = precondition(up + down), up - down
+        return np.concatenate([0.5 * (total + moment), 0.5 * (total - moment)])
+    return apply
 
 
 def _solve_bands(setup: SystemSetup, state: SCFState, v_eff: np.ndarray, tol: float,
@@ -336,48 +420,57 @@ def _solve_bands(setup: SystemSetup, state: SCFState, v_eff: np.ndarray, tol: fl
     nb = setup.n_bands
     eigs = np.zeros((len(setup.bases), nb))
     applications = 0
-    for ik in setup.owned:
+    eigs = np.zeros((setup.n_channels, nb))
+    for j in setup.owned:
+        spin, ik = setup.channel(j)
         basis = setup.bases[ik]
-        ham = KPointHamiltonian(basis, setup.fft, v_eff, *setup.nonlocal_ops[ik])
+        ham = KPointHamiltonian(basis, setup.fft, _channel_potential(v_eff, spin),
+                                *setup.nonlocal_ops[ik])
         result = davidson(ham.apply, kinetic_preconditioner(basis.kinetic),
-                          state.wavefunctions[ik], tolerance=tol, max_iterations=max_iterations,
+                          state.wavefunctions[j], tolerance=tol, max_iterations=max_iterations,
                           n_converge=n_converge)
-        state.wavefunctions[ik] = result.vectors
-        eigs[ik] = result.eigenvalues
+        state.wavefunctions[j] = result.vectors
+        eigs[j] = result.eigenvalues
         applications += result.n_applications
         state.blas_seconds += result.seconds_blas
     return setup.comm.allreduce_sum(eigs), setup.comm.allreduce_sum(applications)
 
 
 def _density(setup: SystemSetup, wavefunctions, occupations) -> np.ndarray:
-    n = np.zeros(setup.grid_shape)
-    weights = setup.kpoints.weights
-    for ik in setup.owned:
-        f = occupations[ik]
+    n = np.zeros((setup.n_spin, *setup.grid_shape))
+    weights = setup.channel_weights
+    for j in setup.owned:
+        spin, ik = setup.channel(j)
+        f = occupations[j]
         sel = np.abs(f) > 1e-14      # smeared occupations may be slightly negative
-        setup.fft.accumulate_density(wavefunctions[ik][sel], setup.bases[ik].grid_index,
-                                     weights[ik] * f[sel], n)
+        setup.fft.accumulate_density(wavefunctions[j][sel], setup.bases[ik].grid_index,
+                                     weights[j] * f[sel], n[spin])
     n = setup.comm.allreduce_sum(n) / setup.volume
     if setup.symmetrize is not None:
-        n = setup.symmetrize(n)
-    return n
+        n = np.stack([setup.symmetrize(x) for x in n])
+    return n[0] if setup.n_spin == 1 else n
 
 
 def _energy(setup: SystemSetup, wavefunctions, occupations, density) -> EnergyTerms:
-    n_g = setup.fft.field_to_reciprocal(density)
+    total = density if density.ndim == 3 else density.sum(axis=0)
+    n_g = setup.fft.field_to_reciprocal(total)
     e_loc, e_g0 = local_energy(setup.v_loc_g, n_g, setup.volume)
-    eps, _ = setup.functional.evaluate(density)
-    own = setup.owned
-    mine = [wavefunctions[i] for i in own]
-    occ, w = occupations[list(own)], setup.kpoints.weights[list(own)]
+    if density.ndim == 3:
+        eps, _ = setup.functional.evaluate(density)
+    else:
+        eps, _, _ = setup.functional.evaluate_polarized(density[0], density[1])
+    own = list(setup.owned)
+    ks = [setup.channel(j)[1] for j in own]
+    mine = [wavefunctions[j] for j in own]
+    occ, w = occupations[own], setup.channel_weights[own]
     band_terms = setup.comm.allreduce_sum(np.array([
-        kinetic_energy(mine, [setup.bases[i].kinetic for i in own], occ, w),
-        nonlocal_energy(mine, [setup.nonlocal_ops[i] for i in own], occ, w)]))
+        kinetic_energy(mine, [setup.bases[i].kinetic for i in ks], occ, w),
+        nonlocal_energy(mine, [setup.nonlocal_ops[i] for i in ks], occ, w)]))
     return EnergyTerms(
         kinetic=float(band_terms[0]),
         local_pseudopotential=e_loc,
         hartree=hartree_energy(n_g, setup.g2, setup.volume),
-        exchange_correlation=xc_energy(density, eps, setup.volume),
+        exchange_correlation=xc_energy(total, eps, setup.volume),
         ewald=setup.ewald,
         pseudopotential_g0=e_g0,
         nonlocal_pseudopotential=float(band_terms[1]),
@@ -397,7 +490,7 @@ class GroundState:
     energy: EnergyTerms
     eigenvalues: np.ndarray          # (n_k, n_bands) Ha
     occupations: np.ndarray          # (n_k, n_bands)
-    density: np.ndarray              # (*grid) bohr^-3, self-consistent output density
+    density: np.ndarray              # (*grid) bohr^-3, self-consistent output density (total)
     wavefunctions: list
     history: list
     band_edges: BandEdges | None
@@ -407,6 +500,22 @@ class GroundState:
     fft_seconds: float
     blas_seconds: float
     messages: tuple[str, ...] = ()
+    spin_densities: np.ndarray | None = None   # (2, *grid) up and down, spin-polarised runs
+
+    @property
+    def magnetization(self) -> float | None:
+        """Total moment N_up - N_down per cell (spin-polarised runs), else None."""
+        if self.spin_densities is None:
+            return None
+        return float((self.spin_densities[0] - self.spin_densities[1]).mean() * self.crystal.volume)
+
+    @property
+    def absolute_magnetization(self) -> float | None:
+        """int |n_up - n_down| d^3r per cell (spin-polarised runs), else None."""
+        if self.spin_densities is None:
+            return None
+        return float(np.abs(self.spin_densities[0] - self.spin_densities[1]).mean()
+                     * self.crystal.volume)
 
     @property
     def crystal(self) -> Crystal:
@@ -442,7 +551,7 @@ class GroundState:
 
     @property
     def applications_per_band(self) -> float:
-        return self.hamiltonian_applications / (self.setup.n_bands * len(self.setup.bases))
+        return self.hamiltonian_applications / (self.setup.n_bands * self.setup.n_channels)
 
 
 def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, *,
@@ -520,9 +629,22 @@ def _remedy(setup: SystemSetup, mixer: PulayMixer, step: int):
     if step == 1:
         q0 = s.screening_wavevector or thomas_fermi_wavevector(setup.n_electrons / setup.volume)
         new = PulayMixer(mixer.weight / 2, min(2 * s.mixing_history, 40),
-                         preconditioner=kerker_preconditioner(setup.g2, q0))
+                         preconditioner=_per_channel(kerker_preconditioner(setup.g2, q0),
+                                                     setup.n_spin))
         return new, f"mixing weight {mixer.weight:g} -> {new.weight:g} with Kerker preconditioning"
     return None
+
+
+def _spin_start(setup: SystemSetup, density: np.ndarray) -> np.ndarray:
+    """Total density -> (up, down) with the starting (or fixed) moment spread uniformly."""
+    if setup.n_spin == 1:
+        return density if density.ndim == 3 else density.sum(axis=0)
+    if density.ndim == 4:
+        return density
+    s = setup.settings
+    moment = s.fixed_magnetization if s.fixed_magnetization is not None else s.starting_magnetization
+    m = np.clip(moment / setup.n_electrons, -1.0, 1.0)
+    return np.stack([0.5 * (1 + m) * density, 0.5 * (1 - m) * density])
 
 
 def _resume(setup: SystemSetup, state: SCFState, mixer: PulayMixer, path) -> None:
@@ -534,10 +656,11 @@ def _resume(setup: SystemSetup, state: SCFState, mixer: PulayMixer, path) -> Non
     state.history = list(meta.get("history", []))
     if len(arrays["mixer_inputs"]):
         mixer.restore_history(arrays["mixer_inputs"], arrays["mixer_residuals"])
-    nk = len(setup.bases)
+    nk = setup.n_channels
     if all(f"wavefunctions_{ik}" in arrays for ik in range(nk)) and setup.comm.size == 1:
         waves = [arrays[f"wavefunctions_{ik}"] for ik in range(nk)]
-        if all(w.shape == (setup.n_bands, b.size) for w, b in zip(waves, setup.bases)):
+        sizes = [setup.bases[setup.channel(j)[1]].size for j in range(nk)]
+        if all(w.shape == (setup.n_bands, n) for w, n in zip(waves, sizes)):
             state.wavefunctions = waves
             state.eigenvalues = arrays.get("eigenvalues")
     if state.history:
@@ -552,11 +675,12 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
     setup.fft.reset_counters()
     if initial_density is not None:
         density = np.array(initial_density, float)
-        if density.shape != setup.grid_shape:
+        if density.shape[-3:] != setup.grid_shape:
             raise InputError("the starting density is on a different FFT grid",
                              key="initial_density", value=list(density.shape))
     else:
         density = np.full(setup.grid_shape, setup.n_electrons / setup.volume)
+    density = _spin_start(setup, density)
     mixer = _mixer(setup)
     state = SCFState(density=density)
     emit = log or (lambda line: None)
@@ -615,7 +739,7 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
             messages.append(msg)
             warnings.warn(msg, ConvergenceWarning, stacklevel=2)
     else:
-        top = highest_band_charge(state.occupations, setup.kpoints.weights)
+        top = highest_band_charge(state.occupations, setup.channel_weights)
         if top > TOP_BAND_CHARGE_LIMIT:
             msg = (f"the highest computed band still holds {top:.1e} electrons: the smearing "
                    "tail is cut off; raise self_consistency.empty_bands")
@@ -624,7 +748,9 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
     return GroundState(
         setup=setup, converged=converged, iterations=state.iteration, energy=state.energy,
         eigenvalues=state.eigenvalues, occupations=state.occupations,
-        density=state.output_density, wavefunctions=state.wavefunctions, history=state.history,
+        density=(state.output_density if setup.n_spin == 1 else state.output_density.sum(axis=0)),
+        spin_densities=None if setup.n_spin == 1 else state.output_density,
+        wavefunctions=state.wavefunctions, history=state.history,
         band_edges=edges, smearing=state.smearing, hamiltonian_applications=state.applications,
         wall_seconds=time.perf_counter() - t_start, fft_seconds=setup.fft.seconds,
         blas_seconds=state.blas_seconds, messages=tuple(messages))

@@ -33,6 +33,9 @@ SETTING_KEYS: dict[str, str] = {
     "mixing_preconditioner": "self_consistency.mixing_preconditioner",
     "screening_wavevector": "self_consistency.screening_wavevector",
     "background_electrons": "crystal.background_electrons",
+    "spin_polarized": "spin.polarized",
+    "starting_magnetization": "spin.starting_magnetization",
+    "fixed_magnetization": "spin.fixed_magnetization",
     "max_iterations": "self_consistency.max_iterations",
     "energy_tolerance": "self_consistency.energy_tolerance",
     "density_tolerance": "self_consistency.density_tolerance",
@@ -83,6 +86,13 @@ class GroundStateSettings:
     background_electrons : float
         Electrons added to the cell together with a uniform positive background
         of the same charge (jellium when the cell has no atoms).
+    spin_polarized : bool
+        Collinear spin-polarised (LSDA) calculation with separate up and down densities.
+    starting_magnetization : float
+        N_up - N_down of the uniform starting density (electrons per cell).
+    fixed_magnetization : float or None
+        Hold N_up - N_down at this value (separate Fermi levels per spin); ``None`` lets
+        the moment relax (one Fermi level; needs smearing for a non-integer moment).
     max_iterations : int
         Largest number of SCF iterations.
     energy_tolerance : float
@@ -109,6 +119,9 @@ class GroundStateSettings:
     mixing_preconditioner: str = "auto"
     screening_wavevector: float | None = None
     background_electrons: float = 0.0
+    spin_polarized: bool = False
+    starting_magnetization: float = 0.0
+    fixed_magnetization: float | None = None
     max_iterations: int = 40
     energy_tolerance: float = 1e-8
     density_tolerance: float = 1e-6
@@ -164,6 +177,16 @@ class GroundStateSettings:
             bad("screening_wavevector", "must be positive and below 50 bohr^-1")
         if not (np.isfinite(self.background_electrons) and 0 <= self.background_electrons <= 1e4):
             bad("background_electrons", "must be a number between 0 and 10000")
+        if not isinstance(self.spin_polarized, (bool, np.bool_)):
+            bad("spin_polarized", "must be true or false")
+        for name in ("starting_magnetization", "fixed_magnetization"):
+            value = getattr(self, name)
+            if value is not None and not (np.isfinite(value) and abs(value) <= 1e4):
+                bad(name, "must be a finite number of electrons per cell")
+        if not self.spin_polarized and (self.starting_magnetization or
+                                        self.fixed_magnetization is not None):
+            bad("starting_magnetization" if self.starting_magnetization else
+                "fixed_magnetization", "needs spin.polarized = true")
         if not isinstance(self.use_symmetry, (bool, np.bool_)):
             bad("use_symmetry", "must be true or false")
         object.__setattr__(self, "pseudopotentials", dict(self.pseudopotentials))
