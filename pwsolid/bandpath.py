@@ -486,23 +486,23 @@ def sample_path(path: PathSpec, n_points: int | None = None, *,
                              key="band_path.points", value=n_points)
         intervals = _split_intervals(lengths, int(n_points) - n_pieces)
 
-    kpts, dist, labels, breaks = [], [], [], []
+    k_list, dist, labels, breaks = [], [], [], []
     x = 0.0
     previous_piece = -1
     for s in range(len(lengths)):
         if seg_piece[s] != previous_piece:       # a new continuous piece: its first point
             if previous_piece >= 0:
-                breaks.append(len(kpts))
-            labels.append((len(kpts), seg_start[s]))
-            kpts.append(k0[s])
+                breaks.append(len(k_list))
+            labels.append((len(k_list), seg_start[s]))
+            k_list.append(k0[s])
             dist.append(x)
             previous_piece = seg_piece[s]
         t = np.arange(1, intervals[s] + 1) / intervals[s]
-        kpts.extend(k0[s] + t[:, None] * (k1[s] - k0[s]))
+        k_list.extend(k0[s] + t[:, None] * (k1[s] - k0[s]))
         dist.extend(x + t * lengths[s])
         x += lengths[s]
-        labels.append((len(kpts) - 1, seg_end[s]))
-    kpoints = np.array(kpts)
+        labels.append((len(k_list) - 1, seg_end[s]))
+    kpoints = np.array(k_list)
     distance = np.array(dist)
     kpoints.setflags(write=False)
     distance.setflags(write=False)

@@ -15,7 +15,7 @@ import numpy as np
 from .fft import fast_fft_size
 
 __all__ = [
-    "PlaneWaveBasis",
+    "PlaneWaveSet",
     "make_basis",
     "fft_grid_for_cutoff",
     "grid_miller_indices",
@@ -25,7 +25,7 @@ __all__ = [
 
 
 @dataclass(frozen=True, eq=False)
-class PlaneWaveBasis:
+class PlaneWaveSet:
     """Plane waves of one k-point.
 
     Attributes
@@ -78,7 +78,7 @@ def fft_grid_for_cutoff(lattice: np.ndarray, cutoff: float) -> tuple[int, int, i
     return tuple(fast_fft_size(2 * b + 1) for b in bounds)
 
 
-def make_basis(lattice: np.ndarray, k_fractional, cutoff: float, grid_shape) -> PlaneWaveBasis:
+def make_basis(lattice: np.ndarray, k_fractional, cutoff: float, grid_shape) -> PlaneWaveSet:
     """Plane waves with |k+G|^2/2 <= cutoff for one k-point.
 
     Raises
@@ -105,7 +105,7 @@ def make_basis(lattice: np.ndarray, k_fractional, cutoff: float, grid_shape) -> 
     if np.any(span > np.array(shape)):
         raise ValueError(f"FFT grid {shape} too small for the basis (span {span.tolist()})")
     idx = np.ravel_multi_index(tuple((m % np.array(shape)).T), shape)
-    return PlaneWaveBasis(k, m.astype(int), kpg, kin, idx.astype(np.intp), shape)
+    return PlaneWaveSet(k, m.astype(int), kpg, kin, idx.astype(np.intp), shape)
 
 
 def grid_miller_indices(grid_shape) -> np.ndarray:

@@ -46,7 +46,7 @@ def fingerprint(setup) -> dict:
         "smearing": [s.smearing, s.smearing_width, s.smearing_order],
         "bands": setup.n_bands,
         "background_electrons": s.background_electrons,
-        "spin": [bool(s.spin_polarized), s.fixed_magnetization],
+        "spin": [bool(s.spin_polarized), s.fixed_moment],
         "pseudopotentials": pseudo,
     }
 

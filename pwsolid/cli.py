@@ -254,10 +254,10 @@ def _input_keys(args) -> int:
 
 def _list_pseudopotentials(args) -> int:
     from .pseudo import bundled_pseudopotentials, load_pseudopotential
-    from .resources import pseudo_dir
+    from .resources import pseudopotential_dir
 
     for name in bundled_pseudopotentials():
-        pp = load_pseudopotential(pseudo_dir() / name)
+        pp = load_pseudopotential(pseudopotential_dir() / name)
         print(f"{name:<34} Z={pp.valence:g}  {pp.form:<30} {pp.reference}")
     return EXIT_OK
 

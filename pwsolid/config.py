@@ -26,7 +26,7 @@ import numpy as np
 
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
-from .resources import pseudo_dir
+from .resources import pseudopotential_dir
 from .settings import SETTING_KEYS, GroundStateSettings
 from .units import parse_quantity
 
@@ -110,9 +110,9 @@ _SETTINGS_DESCRIPTIONS = {
     "smearing_order": ("integer", "", "order of the Methfessel-Paxton scheme"),
     "mixing_preconditioner": ("name", "", "auto (Kerker with smearing), kerker or none"),
     "spin_polarized": ("boolean", "", "collinear spin-polarised (LSDA) calculation"),
-    "starting_magnetization": ("number", "", "N_up - N_down of the starting density "
+    "initial_moment": ("number", "", "N_up - N_down of the starting density "
                                "(electrons per cell)"),
-    "fixed_magnetization": ("number", "", "hold N_up - N_down at this value (automatic: the "
+    "fixed_moment": ("number", "", "hold N_up - N_down at this value (automatic: the "
                             "moment relaxes)"),
     "screening_wavevector": ("quantity", "inverse_length", "Kerker screening wave vector q0 "
                              "(automatic: Thomas-Fermi of the mean density)"),
@@ -662,7 +662,7 @@ class _Reader:
         if path.is_absolute():
             candidates = [path]
         elif len(path.parts) == 1:
-            candidates = [self.base_dir / path, pseudo_dir() / path]
+            candidates = [self.base_dir / path, pseudopotential_dir() / path]
         else:
             candidates = [self.base_dir / path]
         for candidate in candidates:
@@ -672,7 +672,7 @@ class _Reader:
             except (OSError, ValueError):   # e.g. a name too long for the file system
                 pass
         try:
-            bundled = sorted(p.name for p in pseudo_dir().glob(f"{species}-*.toml"))
+            bundled = sorted(p.name for p in pseudopotential_dir().glob(f"{species}-*.toml"))
         except OSError:
             bundled = []
         self.fail(f"pseudopotential file not found; searched {', '.join(map(str, candidates))}; "

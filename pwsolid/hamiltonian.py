@@ -12,27 +12,27 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .basis import PlaneWaveBasis, grid_g_vectors
+from .basis import PlaneWaveSet, grid_g_vectors
 from .fft import FFTGrid
 
 __all__ = ["KPointHamiltonian", "local_potential", "structure_factors",
            "kinetic_preconditioner"]
 
 
-def structure_factors(positions_frac: np.ndarray, miller: np.ndarray) -> np.ndarray:
+def structure_factors(fractional_positions: np.ndarray, miller: np.ndarray) -> np.ndarray:
     """S(G) = sum_atoms exp(-i G . tau) for Miller indices of shape (..., 3)."""
-    phase = -2j * np.pi * (miller @ np.asarray(positions_frac, float).T)
+    phase = -2j * np.pi * (miller @ np.asarray(fractional_positions, float).T)
     return np.exp(phase).sum(axis=-1)
 
 
-def local_potential(lattice: np.ndarray, positions_frac: np.ndarray, species, forms: dict,
+def local_potential(lattice: np.ndarray, fractional_positions: np.ndarray, species, forms: dict,
                     grid_shape) -> np.ndarray:
     """Fourier coefficients of the ionic local potential on the FFT grid.
 
     Parameters
     ----------
     lattice : (3, 3) bohr
-    positions_frac : (n_atoms, 3)
+    fractional_positions : (n_atoms, 3)
     species : sequence of str, one per atom
     forms : mapping species -> object with ``form_factor(q)`` and ``g0_integral``
     grid_shape : 3 ints
@@ -51,7 +51,7 @@ def local_potential(lattice: np.ndarray, positions_frac: np.ndarray, species, fo
     q = np.linalg.norm(g, axis=-1)
     m = grid_miller_indices(grid_shape)
     species = list(species)
-    pos = np.asarray(positions_frac, float)
+    pos = np.asarray(fractional_positions, float)
     v = np.zeros(tuple(grid_shape), dtype=complex)
     for s in dict.fromkeys(species):
         sel = [i for i, x in enumerate(species) if x == s]
@@ -92,13 +92,13 @@ class KPointHamiltonian:
 
     Attributes
     ----------
-    basis : PlaneWaveBasis
+    basis : PlaneWaveSet
     fft : FFTGrid
     potential : (*grid_shape) float, Ha
         V_eff(r) on the grid.
     """
 
-    basis: PlaneWaveBasis
+    basis: PlaneWaveSet
     fft: FFTGrid
     potential: np.ndarray
     projectors: np.ndarray | None = None   # (n_proj, n_pw) complex, see pseudo.separable

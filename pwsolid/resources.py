@@ -10,7 +10,7 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
-__all__ = ["pseudo_dir", "inputs_dir", "demo_input"]
+__all__ = ["pseudopotential_dir", "inputs_dir", "demo_input"]
 
 _PKG = Path(__file__).resolve().parent
 
@@ -22,7 +22,7 @@ def _data_dir(name: str) -> Path:
     return _PKG.parent / name
 
 
-def pseudo_dir() -> Path:
+def pseudopotential_dir() -> Path:
     """Directory of bundled pseudopotential files (``PWSOLID_PSEUDO_DIR`` overrides)."""
     env = os.environ.get("PWSOLID_PSEUDO_DIR")
     return Path(env) if env else _data_dir("pseudos")

@@ -128,7 +128,7 @@ def _spin_block(gs: GroundState, nk: int) -> dict:
         "polarized": True,
         "magnetization": gs.magnetization,
         "absolute_magnetization": gs.absolute_magnetization,
-        "fixed_magnetization": gs.settings.fixed_magnetization,
+        "fixed_moment": gs.settings.fixed_moment,
         "eigenvalues_down_eV": (gs.eigenvalues[nk:] * HARTREE_EV).tolist(),
         "occupations_down": gs.occupations[nk:].tolist(),
     }

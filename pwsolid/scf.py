@@ -17,7 +17,7 @@ from typing import Callable
 import numpy as np
 
 from . import xc as _xc
-from .basis import PlaneWaveBasis, density_sphere, fft_grid_for_cutoff, grid_g_vectors, make_basis
+from .basis import PlaneWaveSet, density_sphere, fft_grid_for_cutoff, grid_g_vectors, make_basis
 from .crystal import Crystal
 from .eigensolver import davidson, dense_lowest_eigenpairs
 from .electrostatics import ewald_energy, hartree_energy, hartree_potential
@@ -62,7 +62,7 @@ def load_pseudopotentials(species, choices) -> dict[str, Pseudopotential]:
     return out
 
 
-def _nonlocal(crystal: Crystal, pps: dict, basis: PlaneWaveBasis):
+def _nonlocal(crystal: Crystal, pps: dict, basis: PlaneWaveSet):
     """(P, D) of the separable pseudopotentials at one k-point, or (None, None)."""
     atoms = [(tau, pps[s].separable) for s, tau in zip(crystal.species, crystal.cartesian_positions)
              if pps[s].is_nonlocal]
@@ -90,7 +90,7 @@ class SystemSetup:
     kpoints: KPointSet
     grid_shape: tuple[int, int, int]
     fft: FFTGrid
-    bases: list[PlaneWaveBasis]
+    bases: list[PlaneWaveSet]
     g2: np.ndarray                  # |G|^2 on the grid, bohr^-2
     v_loc_g: np.ndarray             # ionic local potential, Fourier coefficients (Ha)
     v_loc_r: np.ndarray             # the same on the real-space grid
@@ -143,12 +143,12 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
         raise InputError("the cell holds no electrons: add atoms or background electrons",
                          key="crystal", value=n_el)
     symmetry = _symmetry_of(crystal) if settings.use_symmetry else identity_only()
-    kpts = irreducible_kpoints(settings.kpoint_mesh, settings.kpoint_shift,
+    k_list = irreducible_kpoints(settings.kpoint_mesh, settings.kpoint_shift,
                                symmetry if settings.use_symmetry else None,
                                time_reversal=settings.use_symmetry)
     grid = settings.fft_grid or fft_grid_for_cutoff(crystal.lattice, settings.cutoff)
     try:
-        bases = [make_basis(crystal.lattice, k, settings.cutoff, grid) for k in kpts.fractional]
+        bases = [make_basis(crystal.lattice, k, settings.cutoff, grid) for k in k_list.fractional]
     except ValueError as exc:
         raise InputError(f"{exc}; use a larger grid or remove the setting",
                          key="basis.fft_grid", value=list(grid)) from None
@@ -171,10 +171,10 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
     ewald = (ewald_energy(crystal.lattice, crystal.cartesian_positions,
                           [pps[s].valence for s in crystal.species]) if crystal.n_atoms else 0.0)
     symmetrize = None
-    if kpts.operations is not None and kpts.operations.n_ops > 1:
+    if k_list.operations is not None and k_list.operations.n_ops > 1:
         sphere = density_sphere(crystal.lattice, settings.cutoff, grid)
-        symmetrize = make_density_symmetrizer(kpts.operations, grid, sphere)
-    return SystemSetup(crystal, settings, pps, functional, symmetry, kpts, tuple(grid), fft,
+        symmetrize = make_density_symmetrizer(k_list.operations, grid, sphere)
+    return SystemSetup(crystal, settings, pps, functional, symmetry, k_list, tuple(grid), fft,
                        bases, g2, v_loc_g, v_loc_r, ewald, n_el, n_bands, symmetrize,
                        [_nonlocal(crystal, pps, b) for b in bases], comm,
                        tuple(distribute([b.size for b in bases] * n_spin, comm.size, comm.rank)),
@@ -231,10 +231,10 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
     with single_threaded_blas():
         v_eff = _effective_potential(setup, np.asarray(density, float))
         v_eff_g = setup.fft.field_to_reciprocal(v_eff)
-        kpts = np.atleast_2d(np.asarray(kpoints_fractional, float))
-        out = np.empty((len(kpts), n_bands))
+        k_list = np.atleast_2d(np.asarray(kpoints_fractional, float))
+        out = np.empty((len(k_list), n_bands))
         s = setup.settings
-        for ik, k in enumerate(kpts):
+        for ik, k in enumerate(k_list):
             basis = make_basis(setup.crystal.lattice, k, s.cutoff, setup.grid_shape)
             if basis.size < n_bands:
                 raise InputError(f"{n_bands} bands need more plane waves than the {basis.size} "
@@ -246,7 +246,7 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
                            tolerance=tolerance, max_iterations=200)
             out[ik] = res.eigenvalues
             if progress is not None:
-                progress(ik + 1, len(kpts))
+                progress(ik + 1, len(k_list))
     return out
 
 
@@ -266,7 +266,7 @@ def _channel_potential(v_eff: np.ndarray, spin: int) -> np.ndarray:
     return v_eff if v_eff.ndim == 3 else v_eff[spin]
 
 
-def _initial_guess(basis: PlaneWaveBasis, potential_g: np.ndarray, n_bands: int,
+def _initial_guess(basis: PlaneWaveSet, potential_g: np.ndarray, n_bands: int,
                    shape, projectors=None, coupling=None) -> np.ndarray:
     """Lowest states of H in the slowest plane waves (complete shells), padded into the basis."""
     n_small = min(basis.size, max(3 * n_bands, 60))
@@ -357,8 +357,8 @@ def _occupations(setup: SystemSetup, eigenvalues: np.ndarray):
     if s.smearing != "none":
         scheme = smearing_scheme(s.smearing, s.smearing_order if s.smearing == "methfessel-paxton"
                                  else None)
-    if setup.n_spin == 2 and (s.fixed_magnetization is not None or scheme is None):
-        moment = s.fixed_magnetization or 0.0
+    if setup.n_spin == 2 and (s.fixed_moment is not None or scheme is None):
+        moment = s.fixed_moment or 0.0
         counts = (0.5 * (setup.n_electrons + moment), 0.5 * (setup.n_electrons - moment))
         parts = []
         for spin, n_sigma in enumerate(counts):
@@ -642,7 +642,7 @@ def _spin_start(setup: SystemSetup, density: np.ndarray) -> np.ndarray:
     if density.ndim == 4:
         return density
     s = setup.settings
-    moment = s.fixed_magnetization if s.fixed_magnetization is not None else s.starting_magnetization
+    moment = s.fixed_moment if s.fixed_moment is not None else s.initial_moment
     m = np.clip(moment / setup.n_electrons, -1.0, 1.0)
     return np.stack([0.5 * (1 + m) * density, 0.5 * (1 - m) * density])
 

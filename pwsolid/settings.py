@@ -34,8 +34,8 @@ SETTING_KEYS: dict[str, str] = {
     "screening_wavevector": "self_consistency.screening_wavevector",
     "background_electrons": "crystal.background_electrons",
     "spin_polarized": "spin.polarized",
-    "starting_magnetization": "spin.starting_magnetization",
-    "fixed_magnetization": "spin.fixed_magnetization",
+    "initial_moment": "spin.initial_moment",
+    "fixed_moment": "spin.fixed_moment",
     "max_iterations": "self_consistency.max_iterations",
     "energy_tolerance": "self_consistency.energy_tolerance",
     "density_tolerance": "self_consistency.density_tolerance",
@@ -88,9 +88,9 @@ class GroundStateSettings:
         of the same charge (jellium when the cell has no atoms).
     spin_polarized : bool
         Collinear spin-polarised (LSDA) calculation with separate up and down densities.
-    starting_magnetization : float
+    initial_moment : float
         N_up - N_down of the uniform starting density (electrons per cell).
-    fixed_magnetization : float or None
+    fixed_moment : float or None
         Hold N_up - N_down at this value (separate Fermi levels per spin); ``None`` lets
         the moment relax (one Fermi level; needs smearing for a non-integer moment).
     max_iterations : int
@@ -120,8 +120,8 @@ class GroundStateSettings:
     screening_wavevector: float | None = None
     background_electrons: float = 0.0
     spin_polarized: bool = False
-    starting_magnetization: float = 0.0
-    fixed_magnetization: float | None = None
+    initial_moment: float = 0.0
+    fixed_moment: float | None = None
     max_iterations: int = 40
     energy_tolerance: float = 1e-8
     density_tolerance: float = 1e-6
@@ -179,14 +179,14 @@ class GroundStateSettings:
             bad("background_electrons", "must be a number between 0 and 10000")
         if not isinstance(self.spin_polarized, (bool, np.bool_)):
             bad("spin_polarized", "must be true or false")
-        for name in ("starting_magnetization", "fixed_magnetization"):
+        for name in ("initial_moment", "fixed_moment"):
             value = getattr(self, name)
             if value is not None and not (np.isfinite(value) and abs(value) <= 1e4):
                 bad(name, "must be a finite number of electrons per cell")
-        if not self.spin_polarized and (self.starting_magnetization or
-                                        self.fixed_magnetization is not None):
-            bad("starting_magnetization" if self.starting_magnetization else
-                "fixed_magnetization", "needs spin.polarized = true")
+        if not self.spin_polarized and (self.initial_moment or
+                                        self.fixed_moment is not None):
+            bad("initial_moment" if self.initial_moment else
+                "fixed_moment", "needs spin.polarized = true")
         if not isinstance(self.use_symmetry, (bool, np.bool_)):
             bad("use_symmetry", "must be true or false")
         object.__setattr__(self, "pseudopotentials", dict(self.pseudopotentials))

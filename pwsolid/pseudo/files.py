@@ -23,7 +23,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from ..errors import InputError
-from ..resources import pseudo_dir
+from ..resources import pseudopotential_dir
 from ..units import BOHR_ANGSTROM, ENERGY_UNITS, parse_quantity
 import numpy as np
 
@@ -84,7 +84,7 @@ class Pseudopotential:
 
 def bundled_pseudopotentials(element: str | None = None) -> list[str]:
     """File names in the bundled directory, optionally only those of one element."""
-    d = pseudo_dir()
+    d = pseudopotential_dir()
     names = sorted(p.name for p in d.glob("*.toml") if p.name != "defaults.toml")
     if element:
         names = [n for n in names if n.split("-")[0] == element]
@@ -93,7 +93,7 @@ def bundled_pseudopotentials(element: str | None = None) -> list[str]:
 
 def default_pseudopotential_file(element: str) -> Path:
     """The bundled file used for ``element`` when the input names none."""
-    table_file = pseudo_dir() / "defaults.toml"
+    table_file = pseudopotential_dir() / "defaults.toml"
     try:
         table = tomllib.loads(table_file.read_text())
     except (OSError, tomllib.TOMLDecodeError) as exc:  # pragma: no cover - packaging fault
@@ -104,14 +104,14 @@ def default_pseudopotential_file(element: str) -> Path:
             f"no default pseudopotential for {element}; name a file under "
             f"[pseudopotentials] (bundled defaults exist for {', '.join(sorted(table))})",
             key=f"pseudopotentials.{element}")
-    return pseudo_dir() / table[element]
+    return pseudopotential_dir() / table[element]
 
 
 def resolve_pseudopotential(element: str, name, base_dir: Path | None = None) -> Path:
     """Find a pseudopotential file given by the user (relative to ``base_dir``, then bundled)."""
     path = Path(name)
     candidates = [path] if path.is_absolute() else [
-        (base_dir or Path.cwd()) / path, pseudo_dir() / path]
+        (base_dir or Path.cwd()) / path, pseudopotential_dir() / path]
     for c in candidates:
         if c.is_file():
             return c

@@ -710,13 +710,13 @@ def _combined_progress(progress: Progress | None, offset: int, total: int):
 def _mesh_data(setup: SystemSetup, density, gs: GroundState | None, n_bands: int,
                tolerance: float, progress, offset: int, total: int):
     """(k-points, eigenvalues, weights, Fermi level or None) on the SCF mesh."""
-    kpts = np.asarray(setup.kpoints.fractional)
+    k_list = np.asarray(setup.kpoints.fractional)
     weights = np.asarray(setup.kpoints.weights)
     if gs is not None:
-        return kpts, np.asarray(gs.eigenvalues), weights, getattr(gs, "fermi_level", None)
-    eig = bands_at_kpoints(setup, density, kpts, n_bands, tolerance=tolerance,
+        return k_list, np.asarray(gs.eigenvalues), weights, getattr(gs, "fermi_level", None)
+    eig = bands_at_kpoints(setup, density, k_list, n_bands, tolerance=tolerance,
                            progress=_combined_progress(progress, offset, total))
-    return kpts, eig, weights, _settings_fermi_level(setup, eig, weights)
+    return k_list, eig, weights, _settings_fermi_level(setup, eig, weights)
 
 
 def _settings_fermi_level(setup: SystemSetup, eig, weights) -> float | None:
@@ -833,15 +833,15 @@ def empirical_band_structure(material, path=None, *, cutoff: float | None = None
     if cutoff is not None and reduced_cutoff is not None:
         raise InputError("give either a cutoff or a reduced cutoff, not both",
                          key="empirical.cutoff", value=(cutoff, reduced_cutoff))
-    ecut = float(cutoff) if cutoff is not None else reduced_cutoff_to_hartree(reduced_cutoff, a)
-    if not np.isfinite(ecut) or ecut <= 0:
-        raise InputError("the basis cutoff must be positive", key="empirical.cutoff", value=ecut)
+    cutoff_ha = float(cutoff) if cutoff is not None else reduced_cutoff_to_hartree(reduced_cutoff, a)
+    if not np.isfinite(cutoff_ha) or cutoff_ha <= 0:
+        raise InputError("the basis cutoff must be positive", key="empirical.cutoff", value=cutoff_ha)
     bpath = _sample(crystal, path, n_points)
     k = bpath.kpoints
     eig = np.empty((len(k), int(n_bands)))
     with single_threaded_blas():          # many small matrices: threads only contend
         for i in range(len(k)):
-            eig[i] = empirical_bands(material, k[i:i + 1], n_bands, ecut, crystal=crystal)[0]
+            eig[i] = empirical_bands(material, k[i:i + 1], n_bands, cutoff_ha, crystal=crystal)[0]
             if progress is not None:
                 progress(i + 1, len(k))
     n_electrons = 8.0                     # two atoms, four valence electrons each
@@ -851,5 +851,5 @@ def empirical_band_structure(material, path=None, *, cutoff: float | None = None
     return BandStructure(bpath, eig, gaps.reference, gaps, n_electrons,
                          f"empirical pseudopotential (Cohen-Bergstresser form factors) of {name}",
                          title or f"{name}, empirical pseudopotential bands",
-                         {"cutoff_Ha": ecut, "material": name,
+                         {"cutoff_Ha": cutoff_ha, "material": name,
                           "lattice_constant_bohr": float(a)})

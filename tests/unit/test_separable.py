@@ -14,7 +14,7 @@ from pwsolid.hamiltonian import KPointHamiltonian, kinetic_preconditioner
 from pwsolid.pseudo import load_pseudopotential
 from pwsolid.pseudo.separable import (hgh_off_diagonal, nonlocal_operator, projector_radial,
                                       projector_radial_real, real_spherical_harmonics)
-from pwsolid.resources import pseudo_dir
+from pwsolid.resources import pseudopotential_dir
 
 CASES = [(0, 1), (0, 2), (0, 3), (1, 1), (1, 2), (1, 3), (2, 1), (2, 2)]
 
@@ -59,7 +59,7 @@ def test_hgh_off_diagonal_relations():
 
 
 def _silicon_operator(silicon, k, cutoff=5.0):
-    pp = load_pseudopotential(pseudo_dir() / "Si-goedecker-teter-hutter.toml")
+    pp = load_pseudopotential(pseudopotential_dir() / "Si-goedecker-teter-hutter.toml")
     grid = fft_grid_for_cutoff(silicon.lattice, cutoff)
     basis = make_basis(silicon.lattice, k, cutoff, grid)
     atoms = [(tau, pp.separable) for tau in silicon.cartesian_positions]

@@ -24,7 +24,7 @@ def test_aluminium_loses_a_starting_moment():
     al = pwsolid.face_centred_cubic(pwsolid.angstrom(4.05), "Al")
     s = pwsolid.GroundStateSettings(cutoff=6.0, kpoint_mesh=(6, 6, 6), smearing="cold")
     plain = pwsolid.ground_state(al, s)
-    spin = pwsolid.ground_state(al, s.replace(spin_polarized=True, starting_magnetization=1.0))
+    spin = pwsolid.ground_state(al, s.replace(spin_polarized=True, initial_moment=1.0))
     assert abs(spin.magnetization) < 1e-5
     assert abs(spin.free_energy - plain.free_energy) < 1e-8
     doc = pwsolid.ground_state_document(spin)
@@ -43,7 +43,7 @@ def test_fully_polarised_jellium_reaches_the_analytic_energy():
         gs = pwsolid.ground_state(cell, pwsolid.GroundStateSettings(
             cutoff=8 * e_f + 1, kpoint_mesh=(mesh,) * 3, smearing="fermi-dirac",
             smearing_width=0.02 * e_f, background_electrons=n_el, functional="lda-pw92",
-            spin_polarized=True, fixed_magnetization=n_el))
+            spin_polarized=True, fixed_moment=n_el))
         n = n_el / cell.volume
         eps, _, _ = get_functional("lda-pw92").evaluate_polarized(np.array([n]), np.array([0.0]))
         exact = 1.104951 / rs ** 2 * 2 ** (2 / 3) + eps[0]
