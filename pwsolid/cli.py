@@ -189,12 +189,25 @@ def _ground_state(args) -> int:
     return EXIT_OK
 
 
-def _note_low_cutoff(run) -> None:
-    """Say when the cutoff is below what a pseudopotential file recommends."""
+def _preflight(run) -> dict:
+    """Checks that need the pseudopotential files: their content, and whether the electron
+    count allows the requested filling. Returns the loaded pseudopotentials."""
     from .scf import load_pseudopotentials
 
-    for species, pp in load_pseudopotentials(run.crystal.species,
-                                             run.settings.pseudopotentials).items():
+    s = run.settings
+    pps = load_pseudopotentials(run.crystal.species, s.pseudopotentials)
+    n_el = sum(pps[x].valence for x in run.crystal.species) + s.background_electrons
+    if s.smearing == "none" and not s.spin_polarized and abs(n_el / 2 - round(n_el / 2)) > 1e-8:
+        raise InputError(f"{n_el:g} valence electrons per cell cannot fill bands completely; "
+                         "for a metal set occupations.smearing (e.g. \"cold\")",
+                         key="occupations.smearing", value=s.smearing,
+                         source=str(run.source) if run.source else None)
+    return pps
+
+
+def _note_low_cutoff(run) -> None:
+    """Say when the cutoff is below what a pseudopotential file recommends."""
+    for species, pp in _preflight(run).items():
         if pp.suggested_cutoff and run.settings.cutoff < pp.suggested_cutoff:
             print(f"note: basis.cutoff = {run.settings.cutoff:g} Ha is below the "
                   f"{pp.suggested_cutoff:g} Ha that {Path(str(pp.source_file)).name} recommends "
@@ -239,6 +252,7 @@ def _check_input(args) -> int:
     from .config import load_input
 
     run = load_input(args.input)
+    _preflight(run)
     s = run.settings
     print(f"{args.input}: valid. {run.crystal.n_atoms} atoms, cutoff {s.cutoff:g} Ha, "
           f"k-mesh {'x'.join(map(str, s.kpoint_mesh))}, functional {s.functional}")

@@ -171,7 +171,7 @@ def pseudo_setup(tmp_path, monkeypatch):
 
 
 def test_there_are_enough_cases():
-    assert len(CASES) >= 30
+    assert len(CASES) >= 40
     assert len({case[0] for case in CASES}) == len(CASES)
 
 
@@ -186,6 +186,29 @@ def test_bad_input_is_reported_clearly(pseudo_setup, text, key, fragment):
     assert str(path) in message
     assert f"'{key}'" in message
     assert err.value.source == str(path)
+
+
+@pytest.mark.parametrize("text, key, fragment", [c[1:] for c in CASES], ids=[c[0] for c in CASES])
+def test_bad_input_gives_exit_code_three_and_no_traceback(pseudo_setup, text, key, fragment,
+                                                          capsys):
+    from pwsolid.cli import main
+    from pwsolid.errors import EXIT_INVALID_INPUT
+
+    path = pseudo_setup / "coating-trial.toml"
+    path.write_text(text)
+    assert main(["check-input", str(path)]) == EXIT_INVALID_INPUT
+    err = capsys.readouterr().err
+    assert fragment in err and "Traceback" not in err and err.count("\n") == 1
+
+
+def test_odd_electron_count_without_smearing_is_caught_before_running(tmp_path, capsys):
+    from pwsolid.cli import main
+
+    path = tmp_path / "sodium.toml"
+    path.write_text('[crystal]\nprototype = "bcc"\nlattice_constant = "4.23 angstrom"\n'
+                    'species = "Na"\n')
+    assert main(["check-input", str(path)]) == 3
+    assert "occupations.smearing" in capsys.readouterr().err
 
 
 def test_missing_pseudopotential_names_the_places_searched(pseudo_setup):
