@@ -107,3 +107,14 @@ def test_odd_electron_count_without_smearing_is_refused():
     na = pwsolid.body_centred_cubic(pwsolid.angstrom(4.23), "Na")
     with pytest.raises(pwsolid.InputError, match="even electron count"):
         pwsolid.ground_state(na, GroundStateSettings(cutoff=4.0, kpoint_mesh=(2, 2, 2)))
+
+
+@pytest.mark.slow
+def test_long_aluminium_supercell_converges_without_tuning():
+    # Issue target: a 1x1x8 aluminium supercell (8 atoms in a row along a3) converges to
+    # 1e-8 Ha with the default mixing (Kerker chosen automatically) in at most 25 SCF
+    # iterations; charge sloshing would need many more.
+    al = pwsolid.face_centred_cubic(A_AL, "Al").supercell((1, 1, 8))
+    gs = pwsolid.ground_state(al, GroundStateSettings(cutoff=6.0, kpoint_mesh=(8, 8, 1),
+                                                      smearing="cold"))
+    assert gs.converged and gs.iterations <= 25
