@@ -127,11 +127,16 @@ class SystemSetup:
 
 
 def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
-            comm=None) -> SystemSetup:
+            comm=None, external_potential=None) -> SystemSetup:
     """Build the fixed set-up of a ground-state calculation.
 
     ``comm`` (default: :func:`pwsolid.parallel.world`) spreads the k-points over MPI
     processes; every process holds the whole density and all eigenvalues.
+
+    ``external_potential`` (Ha, on the FFT grid the settings give, or a callable of
+    the grid shape returning it) is added to the ionic local potential, e.g. a weak
+    cosine to measure the static density response; its energy is then part of the
+    ``local_pseudopotential`` term.
     """
     comm = comm if comm is not None else world()
     n_spin = 2 if (settings or GroundStateSettings()).spin_polarized else 1
@@ -167,6 +172,13 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
     forms = {s: pp.local for s, pp in pps.items()}
     fft = make_fft_grid(grid, batch=max(1, min(n_bands, 16)), threads=fft_threads_for(grid))
     v_loc_g = local_potential(crystal.lattice, crystal.positions, crystal.species, forms, grid)
+    if external_potential is not None:
+        v_ext = external_potential(tuple(grid)) if callable(external_potential) else \
+            np.asarray(external_potential, float)
+        if v_ext.shape != tuple(grid):
+            raise InputError(f"the external potential is on a {v_ext.shape} grid, the "
+                             f"calculation on {tuple(grid)}", key="external_potential")
+        v_loc_g = v_loc_g + fft.field_to_reciprocal(v_ext)
     v_loc_r = fft.field_to_real(v_loc_g).real
     ewald = (ewald_energy(crystal.lattice, crystal.cartesian_positions,
                           [pps[s].valence for s in crystal.species]) if crystal.n_atoms else 0.0)
