@@ -1,33 +1,77 @@
-"""Thread budgets for FFTW and BLAS (layer 4).
+"""Thread budgets, communicators and work distribution (layer 4).
 
-The SCF alternates batched FFTs with small dense products. OpenBLAS threads
-that spin between calls starve FFTW threads (and the other way round), which
-made a silicon run eight times slower in our measurements; so the two thread
-pools are set together: BLAS runs single-threaded inside an SCF (its matrices
-are small), and FFTW gets the cores only for grids large enough to profit.
+Threads. The SCF alternates batched FFTs with small dense products. OpenBLAS
+threads that spin between calls starve FFTW threads (and the other way round),
+which made a silicon run eight times slower in our measurements; so the two
+thread pools are set together: BLAS runs single-threaded inside an SCF (its
+matrices are small), and FFTW gets the cores only for grids large enough to
+profit. Under an MPI launcher the cores of a node are shared among the
+processes on it, so each process gets its share, never the whole node.
+
+Processes. A run started by an MPI launcher (``mpiexec -n 2 pwsolid ...``)
+uses :func:`world`, a :class:`MPICommunicator`; otherwise every function sees
+a :class:`SerialCommunicator`, whose reductions are the identity, so the same
+code runs serially without mpi4py. Two levels of distribution exist:
+
+* inside one ground state, the irreducible k-points are spread over the
+  processes (:func:`distribute`, used by :func:`pwsolid.scf.prepare`);
+* in a workflow of independent calculations (the volumes of an equation of
+  state, the settings of a convergence study), whole calculations are spread
+  over the processes with :func:`map_over_ranks`; each runs inside
+  :func:`serial_section`, where :func:`world` is serial, so the calculations
+  inside do not try to talk to processes that are busy with other points.
+
+Reductions are done as a reduction to process 0 followed by a broadcast, so
+every process holds bit-identical sums: each then takes the same stopping
+decision in the SCF loop, and none can wait forever for the others.
 """
 
 from __future__ import annotations
 
 import contextlib
+import contextvars
+import os
+import pickle
+from typing import Callable, Sequence
 
 from threadpoolctl import threadpool_limits
 
 from .fft import default_threads
 
 __all__ = ["fft_threads_for", "single_threaded_blas", "SerialCommunicator", "MPICommunicator",
-           "world", "distribute"]
+           "world", "distribute", "split_evenly", "serial_section", "map_over_ranks",
+           "processes_on_this_node"]
 
 #: Grids with fewer points than this run their FFTs on one thread.
 _THREADED_FFT_POINTS = 48 ** 3
 
+#: Variables by which launchers tell a process how many processes share its node
+#: (MPICH/Hydra, Open MPI, Slurm).
+_LOCAL_SIZE_ENV = ("MPI_LOCALNRANKS", "OMPI_COMM_WORLD_LOCAL_SIZE", "SLURM_NTASKS_PER_NODE")
+
+
+def processes_on_this_node() -> int:
+    """Processes of this MPI run on this node (1 when not launched by an MPI launcher)."""
+    for key in _LOCAL_SIZE_ENV:
+        value = os.environ.get(key, "")
+        if value.isdigit() and int(value) > 0:
+            return int(value)
+    return 1
+
 
 def fft_threads_for(grid_shape) -> int:
-    """FFTW threads for a grid: all usable cores for large grids, one for small ones."""
+    """FFTW threads for a grid: this process's share of the cores for large grids, else one.
+
+    ``PWSOLID_THREADS``, when set, is taken as the per-process count as it is.
+    """
     n = 1
     for s in grid_shape:
         n *= int(s)
-    return default_threads() if n >= _THREADED_FFT_POINTS else 1
+    if n < _THREADED_FFT_POINTS:
+        return 1
+    if os.environ.get("PWSOLID_THREADS", "").isdigit():
+        return default_threads()
+    return max(1, default_threads() // processes_on_this_node())
 
 
 @contextlib.contextmanager
@@ -42,6 +86,9 @@ def single_threaded_blas():
 _MPI_ENV = ("PMI_SIZE", "PMI_RANK", "OMPI_COMM_WORLD_SIZE", "PMIX_RANK", "MPI_LOCALNRANKS",
             "HYDRA_CONTROL_FD")
 
+#: True inside :func:`serial_section`: :func:`world` then answers serially.
+_SERIAL_ONLY = contextvars.ContextVar("pwsolid_serial_only", default=False)
+
 
 class SerialCommunicator:
     """The one-process communicator: every reduction is the identity."""
@@ -55,12 +102,34 @@ class SerialCommunicator:
     def bcast(self, obj, root: int = 0):
         return obj
 
+    def gather(self, obj, root: int = 0):
+        """``[obj]`` (the list of every process's object, on the root)."""
+        return [obj]
+
+    def allgather(self, obj) -> list:
+        """``[obj]`` (the list of every process's object, on every process)."""
+        return [obj]
+
+    def split(self, color: int, key: int = 0) -> "SerialCommunicator":
+        """A sub-communicator of the processes with the same ``color``: this one."""
+        return self
+
     def barrier(self) -> None:
         pass
 
 
+def _sum_op():
+    from mpi4py import MPI
+
+    return MPI.SUM
+
+
 class MPICommunicator:
-    """Thin wrapper over an mpi4py communicator (sums of numbers and numpy arrays)."""
+    """Thin wrapper over an mpi4py communicator (sums of numbers and numpy arrays).
+
+    Sums are reduced to process 0 and broadcast, so that every process holds the
+    same bits (see the module notes); objects travel pickled.
+    """
 
     def __init__(self, comm):
         self._comm = comm
@@ -69,26 +138,41 @@ class MPICommunicator:
 
     def allreduce_sum(self, value):
         import numpy as np
-        from mpi4py import MPI
 
+        op = _sum_op()
         if isinstance(value, np.ndarray):
-            out = np.empty_like(value)
-            self._comm.Allreduce(np.ascontiguousarray(value), out, op=MPI.SUM)
+            send = np.ascontiguousarray(value)
+            out = np.empty_like(send)
+            self._comm.Reduce(send, out if self.rank == 0 else None, op=op, root=0)
+            self._comm.Bcast(out, root=0)
             return out
-        return self._comm.allreduce(value, op=MPI.SUM)
+        return self._comm.bcast(self._comm.reduce(value, op=op, root=0), root=0)
 
     def bcast(self, obj, root: int = 0):
         return self._comm.bcast(obj, root=root)
+
+    def gather(self, obj, root: int = 0):
+        """The list of every process's ``obj`` (by rank) on ``root``; None elsewhere."""
+        return self._comm.gather(obj, root=root)
+
+    def allgather(self, obj) -> list:
+        """The list of every process's ``obj`` (by rank), on every process."""
+        return self._comm.allgather(obj)
+
+    def split(self, color: int, key: int = 0) -> "MPICommunicator":
+        """Sub-communicator of the processes that pass the same ``color``, ordered by ``key``."""
+        return MPICommunicator(self._comm.Split(int(color), int(key)))
 
     def barrier(self) -> None:
         self._comm.Barrier()
 
 
 def world():
-    """The communicator of this run: MPI when launched by an MPI launcher, else serial."""
-    import os
+    """The communicator of this run: MPI when launched by an MPI launcher, else serial.
 
-    if not any(k in os.environ for k in _MPI_ENV):
+    Inside :func:`serial_section` it is always serial.
+    """
+    if _SERIAL_ONLY.get() or not any(k in os.environ for k in _MPI_ENV):
         return SerialCommunicator()
     try:
         from mpi4py import MPI
@@ -96,6 +180,16 @@ def world():
         return SerialCommunicator()
     comm = MPI.COMM_WORLD
     return SerialCommunicator() if comm.Get_size() == 1 else MPICommunicator(comm)
+
+
+@contextlib.contextmanager
+def serial_section():
+    """Inside the block :func:`world` is serial: for work one process does on its own."""
+    token = _SERIAL_ONLY.set(True)
+    try:
+        yield
+    finally:
+        _SERIAL_ONLY.reset(token)
 
 
 def distribute(costs, size: int, rank: int) -> list[int]:
@@ -111,3 +205,103 @@ def distribute(costs, size: int, rank: int) -> list[int]:
         owner[i] = r
         load[r] += float(costs[i])
     return [i for i in range(len(costs)) if owner[i] == rank]
+
+
+def split_evenly(n_items: int, size: int, rank: int) -> range:
+    """The contiguous block of ``range(n_items)`` that ``rank`` of ``size`` owns.
+
+    Blocks differ in length by at most one, the longer ones first; their
+    concatenation over the ranks is ``range(n_items)``.
+    """
+    if size < 1 or not 0 <= rank < size:
+        raise ValueError(f"rank {rank} is not one of {size} processes")
+    base, extra = divmod(int(n_items), size)
+    start = rank * base + min(rank, extra)
+    return range(start, start + base + (1 if rank < extra else 0))
+
+
+class _RemoteFailure:
+    """An exception raised while a process worked on one item, carried to the others."""
+
+    def __init__(self, exc: BaseException):
+        try:
+            pickle.loads(pickle.dumps(exc))
+            self.exc = exc
+        except Exception:  # noqa: BLE001 - not every exception survives pickling
+            self.exc = RuntimeError(f"{type(exc).__name__}: {exc}")
+
+
+def map_over_ranks(function: Callable, items: Sequence, comm=None, *,
+                   costs: Sequence[float] | None = None,
+                   on_result: Callable[[int, object, bool], None] | None = None) -> list:
+    """``[function(item) for item in items]`` with the items spread over the processes.
+
+    Parameters
+    ----------
+    function
+        Called once per item, on the process that owns it, inside
+        :func:`serial_section`; the items a process owns are called in order,
+        so state kept by ``function`` (a warm start) chains along them.
+    items
+        The independent pieces of work.
+    comm
+        Communicator (default :func:`world`). With one process this is a plain loop.
+    costs
+        Estimated cost per item: items are then balanced with :func:`distribute`
+        (not contiguous); without, each process owns one contiguous block
+        (:func:`split_evenly`), which keeps neighbouring items together.
+    on_result
+        ``on_result(index, result, computed_here)``: called on every process
+        for its own items as they finish, then for the other processes' items
+        after the exchange (in item order).
+
+    Returns
+    -------
+    list
+        Every item's result, in item order, on every process. Results must be
+        picklable.
+
+    Raises
+    ------
+    Exception
+        The first (in item order) exception raised by ``function`` on any
+        process is raised on every process, after the exchange, so that none
+        is left waiting.
+    """
+    comm = comm if comm is not None else world()
+    items = list(items)
+    if comm.size == 1:
+        out = []
+        for i, item in enumerate(items):
+            out.append(function(item))
+            if on_result is not None:
+                on_result(i, out[-1], True)
+        return out
+    if costs is not None:
+        mine = distribute(costs, comm.size, comm.rank)
+    else:
+        mine = list(split_evenly(len(items), comm.size, comm.rank))
+    done: dict[int, object] = {}
+    failed: dict[int, _RemoteFailure] = {}
+    with serial_section():
+        for i in mine:
+            try:
+                done[i] = function(items[i])
+            except Exception as exc:  # noqa: BLE001 - carried to every process below
+                failed[i] = _RemoteFailure(exc)
+                break
+            if on_result is not None:
+                on_result(i, done[i], True)
+    gathered = comm.allgather((done, failed))
+    results: dict[int, object] = {}
+    failures: dict[int, _RemoteFailure] = {}
+    for d, f in gathered:
+        results.update(d)
+        failures.update(f)
+    if failures:
+        raise failures[min(failures)].exc
+    if on_result is not None:
+        for i in range(len(items)):
+            if i not in done:
+                on_result(i, results[i], False)
+    return [results[i] for i in range(len(items))]

@@ -70,7 +70,8 @@ def run(args) -> int:
     doc["inputs"] = {n: r.echo for n, r in runs.items()}
     path = Path(args.result_file)
     path = path if path.is_absolute() else out_dir / path
-    write_json(path, doc)
+    if getattr(args, "writes_files", True):      # MPI: only process 0 writes
+        write_json(path, doc)
     print(f"\n  {'rank':<5}{'candidate':<24}{'E - E_lowest':>14}{'V0/atom':>11}{'B0':>9}"
           f"{'B0prime':>9}")
     print(f"  {'':<5}{'':<24}{'(meV/atom)':>14}{'(A^3)':>11}{'(GPa)':>9}{'':>9}")

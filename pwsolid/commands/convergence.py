@@ -133,9 +133,11 @@ def run(args) -> int:
     doc["title"] = run_input.title
     doc["input"] = run_input.echo
     json_path = out_dir / f"{stem}.convergence.json"
-    write_json(json_path, doc)
-    figures = ConvergencePlot.from_study(study, title=run_input.title).save(
-        out_dir / f"{stem}.convergence")
+    figures = []
+    if getattr(args, "writes_files", True):      # MPI: only process 0 writes
+        write_json(json_path, doc)
+        figures = ConvergencePlot.from_study(study, title=run_input.title).save(
+            out_dir / f"{stem}.convergence")
     prec = f"{e_prec * HARTREE_EV * 1e3:g} meV/atom"
     if study.with_lattice:
         prec += f" and {a_prec * BOHR_ANGSTROM:g} angstrom"

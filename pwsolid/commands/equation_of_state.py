@@ -174,9 +174,11 @@ def run(args) -> int:
     doc["title"] = run_input.title
     doc["input"] = run_input.echo
     json_path = out_dir / f"{stem}.eos.json"
-    write_json(json_path, doc)
-    plot = EquationOfStatePlot.from_scan(scan, title=run_input.title)
-    figures = plot.save(out_dir / f"{stem}.eos")
+    figures = []
+    if getattr(args, "writes_files", True):      # MPI: only process 0 writes
+        write_json(json_path, doc)
+        plot = EquationOfStatePlot.from_scan(scan, title=run_input.title)
+        figures = plot.save(out_dir / f"{stem}.eos")
     print(f"\nEquation of state: {len(scan.points)} points"
           + (f" ({sum(p.resumed for p in scan.points)} from the restart file)"
              if any(p.resumed for p in scan.points) else ""))

@@ -30,6 +30,7 @@ import numpy as np
 
 from ..crystal import Crystal
 from ..errors import ConvergenceWarning, InputError
+from ..parallel import map_over_ranks, world
 from ..settings import GroundStateSettings
 from ..units import BOHR_ANGSTROM, HARTREE_EV
 from .equation_of_state import PointSolver, WarmStart, _scf_solver, scan_volumes
@@ -244,7 +245,7 @@ def converge_settings(crystal: Crystal, settings: GroundStateSettings | None = N
                       volume_range: float = 0.04, n_points: int = 5,
                       progress: Callable[[int, int], None] | None = None,
                       log: Callable[[str], None] | None = None,
-                      solver: PointSolver | None = None) -> ConvergenceStudy:
+                      solver: PointSolver | None = None, comm=None) -> ConvergenceStudy:
     """Energy (and lattice constant) against cutoff and against k-point mesh.
 
     Parameters
@@ -270,6 +271,10 @@ def converge_settings(crystal: Crystal, settings: GroundStateSettings | None = N
         Called with one line per setting.
     solver
         One point's calculation (see :class:`~pwsolid.workflows.equation_of_state.PointSolver`).
+    comm
+        Communicator over which the settings are spread (default
+        :func:`pwsolid.parallel.world`): under MPI each process computes some of
+        the settings serially and every process returns the whole study.
 
     Returns
     -------
@@ -306,10 +311,12 @@ def converge_settings(crystal: Crystal, settings: GroundStateSettings | None = N
             previous["warm"] = WarmStart(np.asarray(density, float), cell.volume)
         return out
 
-    for done, (cut, mesh) in enumerate(unique_jobs, start=1):
+    def run_job(job) -> tuple[dict, list[str]]:
+        cut, mesh = job
         s = settings.replace(cutoff=cut, kpoint_mesh=mesh)
         t0 = time.perf_counter()
         res = {"lattice": None, "b0": None}
+        notes: list[str] = []
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", ConvergenceWarning)
             if with_lattice:
@@ -320,7 +327,7 @@ def converge_settings(crystal: Crystal, settings: GroundStateSettings | None = N
                                         solver=warm_solver, max_extensions=2)
                 except InputError as exc:
                     scan = None
-                    messages.append(f"cutoff {cut:g} Ha, mesh {_mesh(mesh)}: {exc.reason}")
+                    notes.append(f"cutoff {cut:g} Ha, mesh {_mesh(mesh)}: {exc.reason}")
                 if scan is not None:
                     centre = min(scan.points, key=lambda p: abs(p.volume - crystal.volume))
                     res.update(energy=centre.energy, converged=scan.all_points_converged,
@@ -330,7 +337,7 @@ def converge_settings(crystal: Crystal, settings: GroundStateSettings | None = N
                     res["b0"] = scan.b0_gpa
                     for m in scan.messages:
                         if "extended" in m or "outside" in m:
-                            messages.append(f"cutoff {cut:g} Ha, mesh {_mesh(mesh)}: {m}")
+                            notes.append(f"cutoff {cut:g} Ha, mesh {_mesh(mesh)}: {m}")
                 else:
                     res.update(_single(crystal, s, warm_solver))
             else:
@@ -341,12 +348,30 @@ def converge_settings(crystal: Crystal, settings: GroundStateSettings | None = N
         for w in caught:
             if not issubclass(w.category, ConvergenceWarning):
                 warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
-        results[(cut, mesh)] = res
+        return res, notes
+
+    counter = {"done": 0}
+
+    def finish(index, outcome, computed_here):
+        cut, mesh = unique_jobs[index]
+        res, _ = outcome
         lat = "" if res["lattice"] is None else f"  a = {res['lattice'] * BOHR_ANGSTROM:.5f} A"
         emit(f"cutoff {cut:7.2f} Ha  mesh {_mesh(mesh):>8}  E/atom = "
              f"{res['energy'] / crystal.n_atoms:15.8f} Ha{lat}  {res['seconds']:6.1f} s")
+        counter["done"] += 1
         if progress is not None:
-            progress(done, len(unique_jobs))
+            progress(counter["done"], len(unique_jobs))
+
+    # Under MPI the settings are spread over the processes, balanced by a rough cost
+    # (plane waves ~ cutoff^1.5, times mesh points, times volumes); each process runs
+    # its settings serially, warm-starting from its own previous setting.
+    comm = comm if comm is not None else world()
+    costs = [c ** 1.5 * float(np.prod(m)) * (n_points if with_lattice else 1)
+             for c, m in unique_jobs]
+    outcomes = map_over_ranks(run_job, unique_jobs, comm, costs=costs, on_result=finish)
+    for job, (res, notes) in zip(unique_jobs, outcomes):
+        results[job] = res
+        messages.extend(notes)
 
     n = crystal.n_atoms
 

@@ -28,6 +28,13 @@ What the workflow takes care of:
   E(V). The optimal c/a at V0 comes from a polynomial (degree <= 2) through the
   c/a(V) values. A vertex outside the given ratios is clipped to the nearest
   end and reported.
+* **Processes.** Under an MPI launcher the points are spread over the
+  processes (:func:`pwsolid.parallel.map_over_ranks`): each computes one
+  contiguous block of volumes serially, warm-starting along its block, and
+  all processes end with the whole scan. A block's first point has no
+  finished neighbour yet, so it starts cold (or from an earlier round's
+  density); energies then agree with a serial scan to the SCF tolerance, not
+  to the last bit.
 * **Resume.** With ``store`` (a JSON file) every finished point is written at
   once (temporary file, fsync, rename), keyed by volume (and c/a), together
   with a fingerprint of the crystal and of the settings that change energies.
@@ -55,6 +62,7 @@ import numpy as np
 from ..crystal import Crystal
 from ..eos import EOS_FORMS, EOSFit, compare_fits, fit_equation_of_state
 from ..errors import ConvergenceWarning, InputError
+from ..parallel import map_over_ranks, world
 from ..settings import GroundStateSettings
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
 
@@ -646,7 +654,7 @@ def scan_volumes(crystal: Crystal, settings: GroundStateSettings | None = None, 
                  progress: Callable[[int, int], None] | None = None,
                  log: Callable[[str], None] | None = None,
                  store=None, extension_points: int = 3, max_extensions: int = 4,
-                 solver: PointSolver | None = None) -> VolumeScan:
+                 solver: PointSolver | None = None, comm=None) -> VolumeScan:
     """Energy against volume around a crystal, with every equation of state fitted.
 
     Parameters
@@ -674,6 +682,13 @@ def scan_volumes(crystal: Crystal, settings: GroundStateSettings | None = None, 
         Volumes added per extension of the range, and the most extensions.
     solver
         Computes one point (see :class:`PointSolver`); default: the SCF.
+    comm
+        Communicator over which the points are spread (default
+        :func:`pwsolid.parallel.world`). Under MPI each process computes a
+        contiguous block of the volumes serially, warm-starting along its block,
+        and every process returns the whole scan; only process 0 writes
+        ``store``. Pass a :class:`~pwsolid.parallel.SerialCommunicator` to
+        compute every point on all processes together (k-points spread instead).
 
     Returns
     -------
@@ -695,6 +710,7 @@ def scan_volumes(crystal: Crystal, settings: GroundStateSettings | None = None, 
     qs = _check_options(crystal, volume_range, n_points, c_over_a_values, extension_points,
                         max_extensions)
     solver = solver or _scf_solver
+    comm = comm if comm is not None else world()
     emit = log or (lambda line: None)
     point_store = _PointStore(store, crystal, settings) if store is not None else None
     v_in = crystal.volume
@@ -718,24 +734,36 @@ def scan_volumes(crystal: Crystal, settings: GroundStateSettings | None = None, 
         return densities[min(densities, key=distance)]
 
     def compute(volumes, stage):
+        jobs = []
         for i, v in enumerate(volumes):
             # serpentine order in c/a keeps each point next to the previous one
             q_order = (qs if i % 2 == 0 else qs[::-1]) if qs else (None,)
-            for q in q_order:
-                points[key(v, q)] = run_point(v, q, stage)
-                counter["done"] += 1
-                if progress is not None:
-                    progress(counter["done"], counter["total"])
+            jobs.extend((v, q) for q in q_order)
+        # Under MPI every process computes one contiguous block of the points on its
+        # own (warm starts chain inside the block) and all processes then hold all.
+        map_over_ranks(lambda job: run_point(*job, stage), jobs, comm, on_result=finish)
 
-    def run_point(v, q, stage) -> ScanPoint:
+    def finish(index, outcome, computed_here):
+        p, warm, suffix = outcome
+        k = key(p.volume, p.c_over_a)
+        points[k] = p
+        if warm is not None:
+            densities[k] = warm
+        if point_store is not None and not p.resumed and comm.rank == 0:
+            point_store.add(p)
+        emit(_point_line(p, suffix))
+        counter["done"] += 1
+        if progress is not None:
+            progress(counter["done"], counter["total"])
+
+    def run_point(v, q, stage) -> tuple[ScanPoint, WarmStart | None, str]:
         if point_store is not None:
             rec = point_store.find(v, q)
             if rec is not None and rec.get("converged", False):
                 p = ScanPoint(v, q, float(rec["energy_Ha"]), True, int(rec.get("iterations", 0)),
                               float(rec.get("seconds", 0.0)), resumed=True, stage=stage,
                               notes=tuple(rec.get("notes", ())))
-                emit(_point_line(p, " (from the restart file)"))
-                return p
+                return p, None, " (from the restart file)"
         cell = _crystal_at(crystal, v, q)
         t0 = time.perf_counter()
         with warnings.catch_warnings(record=True) as caught:
@@ -757,12 +785,11 @@ def scan_volumes(crystal: Crystal, settings: GroundStateSettings | None = None, 
             raise InputError("the solver returned a non-finite energy", key="energy",
                              value=p.energy)
         density = getattr(outcome, "density", None)
+        warm = None
         if density is not None:
-            densities[key(v, q)] = WarmStart(np.asarray(density, float), cell.volume)
-        if point_store is not None:
-            point_store.add(p)
-        emit(_point_line(p, ""))
-        return p
+            warm = WarmStart(np.asarray(density, float), cell.volume)
+            densities[key(v, q)] = warm   # the next point of this process starts from it
+        return p, warm, ""
 
     compute(planned, 0)
     c_model = None

@@ -9,11 +9,9 @@ import sys
 import time
 import warnings
 
-import numpy as np
 import pytest
 
 import pwsolid
-from pwsolid.checkpoint import save_checkpoint
 from pwsolid.cli import main
 from pwsolid.errors import EXIT_INVALID_INPUT, EXIT_NOT_CONVERGED, EXIT_OK
 

@@ -1,0 +1,64 @@
+"""Programs the MPI tests launch as ``[mpiexec -n N] python mpi_programs.py WHAT OUT.json``.
+
+Not a test module: ``test_mpi_consistency.py`` runs these serially and under
+``mpiexec`` and compares what process 0 writes. Every program also checks that
+all processes hold the same numbers (the reductions broadcast one result).
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+import warnings
+
+import numpy as np
+
+import pwsolid
+from pwsolid.parallel import world
+
+#: Small silicon: 6 Ha, 2x2x2 mesh through Gamma (3 irreducible k-points).
+SILICON = dict(cutoff=6.0, kpoint_mesh=(2, 2, 2), kpoint_shift=(0, 0, 0),
+               energy_tolerance=1e-10, density_tolerance=1e-7)
+
+
+def ground_state(pseudopotential: str) -> dict:
+    comm = world()
+    si = pwsolid.diamond(pwsolid.angstrom(5.431), "Si")
+    settings = pwsolid.GroundStateSettings(pseudopotentials={"Si": pseudopotential}, **SILICON)
+    gs = pwsolid.ground_state(si, settings)
+    owned = comm.allgather(list(gs.setup.owned))
+    energies = comm.allgather(gs.total_energy)
+    return {"processes": comm.size, "total_energy_Ha": gs.total_energy,
+            "free_energy_Ha": gs.free_energy, "iterations": gs.iterations,
+            "eigenvalues_Ha": np.asarray(gs.eigenvalues).tolist(),
+            "density_integral": float(gs.density.mean() * si.volume),
+            "density_checksum": float(np.sum(gs.density * np.arange(gs.density.size).reshape(
+                gs.density.shape) / gs.density.size)),
+            "owned_kpoints": owned, "kpoints": len(gs.kpoints.weights),
+            "energies_on_every_process": energies}
+
+
+def volume_scan() -> dict:
+    from pwsolid.workflows.equation_of_state import scan_volumes
+
+    comm = world()
+    # 5.11 angstrom: near the minimum of this small basis, so no range extension
+    si = pwsolid.diamond(pwsolid.angstrom(5.11), "Si")
+    settings = pwsolid.GroundStateSettings(
+        pseudopotentials={"Si": "Si-appelbaum-hamann.toml"}, cutoff=4.0, kpoint_mesh=(2, 2, 2),
+        kpoint_shift=(0, 0, 0), energy_tolerance=1e-9)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")    # a coarse scan; the test compares, not judges
+        scan = scan_volumes(si, settings, volume_range=0.06, n_points=5, max_extensions=0)
+    mine = [(p.volume, p.energy) for p in scan.points]
+    return {"processes": comm.size, "points": mine,
+            "points_on_every_process": comm.allgather(mine), "v0": scan.v0,
+            "b0_gpa": scan.b0_gpa}
+
+
+if __name__ == "__main__":
+    what, out = sys.argv[1], sys.argv[2]
+    result = volume_scan() if what == "volume-scan" else ground_state(what)
+    if world().rank == 0:
+        with open(out, "w") as fh:
+            json.dump(result, fh)
