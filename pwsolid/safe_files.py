@@ -67,7 +67,7 @@ def read_archive(path, fmt: str, what: str = "file") -> tuple[dict, dict]:
     """Read an archive written by :func:`write_archive`; returns ``(arrays, metadata)``."""
     src = str(path)
     try:
-        with np.load(path, allow_pickle=False) as data:
+        with open(path, "rb") as fh, np.load(fh, allow_pickle=False) as data:
             arrays = {k: data[k] for k in data.files}
     except FileNotFoundError:
         raise InputError(f"{what} not found", source=src) from None

@@ -61,9 +61,13 @@ def test_foreign_or_corrupted_checkpoints_are_refused(silicon_small, tmp_path):
                              if line.startswith("   2 ") else None)
     with pytest.raises(pwsolid.InputError, match="cutoff_Ha"):
         pwsolid.ground_state(silicon_small, SETTINGS.replace(cutoff=9.0), checkpoint=ckpt)
-    raw = bytearray(ckpt.read_bytes())
-    raw[len(raw) // 3] ^= 0x55
+    good = ckpt.read_bytes()
+    raw = bytearray(good)
+    raw[len(raw) // 3] ^= 0x55                       # a flipped bit
     ckpt.write_bytes(bytes(raw))
+    with pytest.raises(pwsolid.InputError, match="c.npz"):
+        pwsolid.ground_state(silicon_small, SETTINGS, checkpoint=ckpt)
+    ckpt.write_bytes(good[: len(good) // 2])         # a truncated file
     with pytest.raises(pwsolid.InputError, match="c.npz"):
         pwsolid.ground_state(silicon_small, SETTINGS, checkpoint=ckpt)
 
@@ -104,9 +108,11 @@ def test_not_converged_result_is_marked_and_exit_code_is_four(tmp_path):
 
 
 @pytest.mark.slow
-def test_sigterm_keeps_the_checkpoint_and_the_same_command_finishes(tmp_path):
-    # A terminated process (SIGTERM, as a batch system sends) resumes with the same
-    # command and reaches the uninterrupted energy to 1e-8 Ha.
+@pytest.mark.parametrize("how", [signal.SIGTERM, signal.SIGKILL], ids=["sigterm", "sigkill"])
+def test_a_stopped_run_resumes_with_the_same_command(tmp_path, how):
+    # A terminated (SIGTERM, as a batch system sends) or killed (SIGKILL: no chance to
+    # clean up) process resumes from the last periodic checkpoint with the same command
+    # and reaches the uninterrupted energy to 1e-8 Ha.
     path = tmp_path / "long.toml"
     path.write_text(INPUT.format(cutoff=14, mesh=6))
     ckpt = tmp_path / "long.checkpoint.npz"
@@ -118,9 +124,13 @@ def test_sigterm_keeps_the_checkpoint_and_the_same_command_finishes(tmp_path):
         time.sleep(0.02)
     if proc.poll() is not None:
         pytest.skip("the run finished before it could be interrupted (machine too fast)")
-    proc.send_signal(signal.SIGTERM)
+    time.sleep(0.3)                   # stop it somewhere inside a later iteration
+    proc.send_signal(how)
     _, err = proc.communicate(timeout=120)
-    assert proc.returncode == 130 and "run the same command" in err
+    if how == signal.SIGTERM:
+        assert proc.returncode == 130 and "run the same command" in err
+    else:
+        assert proc.returncode == -signal.SIGKILL
     assert ckpt.exists()
     done = subprocess.run(cmd, capture_output=True, text=True, env=env, timeout=600)
     assert done.returncode == 0, done.stderr
