@@ -34,7 +34,6 @@ that are plotted.
 
 from __future__ import annotations
 
-import os
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -48,6 +47,7 @@ from ..occupations import fermi_level as _sharp_fermi_level
 from ..occupations import smeared_occupations, smearing_scheme
 from ..pseudo.empirical import EMPIRICAL_MATERIALS, empirical_bands, empirical_crystal
 from ..pseudo.empirical import reduced_cutoff_to_hartree
+from ..safe_files import atomic_write_bytes
 from ..parallel import single_threaded_blas
 from ..scf import GroundState, SystemSetup, bands_at_kpoints
 from ..units import HARTREE_EV
@@ -441,15 +441,9 @@ class BandStructure:
 
 
 def _write_text(path, text: str) -> Path:
-    """Write a text file through a temporary name and a rename (never half a file)."""
+    """Write a text file atomically (never half a file)."""
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f".{path.name}.part")
-    with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
-        fh.write(text)
-        fh.flush()
-        os.fsync(fh.fileno())
-    os.replace(tmp, path)
+    atomic_write_bytes(path, text.encode("utf-8"))
     return path
 
 

@@ -49,8 +49,6 @@ from __future__ import annotations
 import hashlib
 import json
 import math
-import os
-import tempfile
 import time
 import warnings
 from dataclasses import dataclass, field
@@ -63,6 +61,7 @@ from ..crystal import Crystal
 from ..eos import EOS_FORMS, EOSFit, compare_fits, fit_equation_of_state
 from ..errors import ConvergenceWarning, InputError
 from ..parallel import map_over_ranks, world
+from ..safe_files import atomic_write_bytes
 from ..settings import GroundStateSettings
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
 
@@ -488,20 +487,7 @@ class VolumeScan:
 
 def _atomic_write_text(path: Path, text: str) -> None:
     """Write so that a reader sees the old or the complete new file, never half of one."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except OSError:
-            pass
-        raise
+    atomic_write_bytes(path, text.encode("utf-8"))
 
 
 def _fingerprint(crystal: Crystal, settings: GroundStateSettings) -> tuple[str, dict]:
