@@ -21,7 +21,8 @@ from .basis import PlaneWaveSet, density_sphere, fft_grid_for_cutoff, grid_g_vec
 from .crystal import Crystal
 from .eigensolver import davidson, dense_lowest_eigenpairs
 from .electrostatics import ewald_energy, hartree_energy, hartree_potential
-from .energies import EnergyTerms, kinetic_energy, local_energy, nonlocal_energy, xc_energy
+from .energies import EnergyTerms, kinetic_energy, local_energy, nonlocal_energy
+from .xc_grid import exchange_correlation_on_grid
 from .checkpoint import load_checkpoint, save_checkpoint
 from .errors import ConvergenceError, ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
@@ -102,6 +103,7 @@ class SystemSetup:
     comm: object = field(default_factory=SerialCommunicator)  # see pwsolid.parallel
     owned: tuple = ()                                  # channel indices this process solves
     n_spin: int = 1
+    g_vectors: np.ndarray | None = None               # Cartesian G on the grid, bohr^-1
 
     @property
     def grid_size(self) -> int:
@@ -190,7 +192,7 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
                        bases, g2, v_loc_g, v_loc_r, ewald, n_el, n_bands, symmetrize,
                        [_nonlocal(crystal, pps, b) for b in bases], comm,
                        tuple(distribute([b.size for b in bases] * n_spin, comm.size, comm.rank)),
-                       n_spin)
+                       n_spin, g)
 
 
 @dataclass
@@ -267,11 +269,12 @@ def _effective_potential(setup: SystemSetup, density: np.ndarray):
     total = density if density.ndim == 3 else density.sum(axis=0)
     n_g = setup.fft.field_to_reciprocal(total)
     v_h = setup.fft.field_to_real(hartree_potential(n_g, setup.g2)).real
-    if density.ndim == 3:
-        eps, v_xc = setup.functional.evaluate(density)
-        return setup.v_loc_r + v_h + v_xc
-    eps, v_up, v_down = setup.functional.evaluate_polarized(density[0], density[1])
-    return np.stack([setup.v_loc_r + v_h + v_up, setup.v_loc_r + v_h + v_down])
+    v_xc = _xc_on_grid(setup, density).potential
+    return setup.v_loc_r + v_h + v_xc
+
+
+def _xc_on_grid(setup: SystemSetup, density: np.ndarray):
+    return exchange_correlation_on_grid(setup.functional, density, setup.fft, setup.g_vectors)
 
 
 def _channel_potential(v_eff: np.ndarray, spin: int) -> np.ndarray:
@@ -467,10 +470,7 @@ def _energy(setup: SystemSetup, wavefunctions, occupations, density) -> EnergyTe
     total = density if density.ndim == 3 else density.sum(axis=0)
     n_g = setup.fft.field_to_reciprocal(total)
     e_loc, e_g0 = local_energy(setup.v_loc_g, n_g, setup.volume)
-    if density.ndim == 3:
-        eps, _ = setup.functional.evaluate(density)
-    else:
-        eps, _, _ = setup.functional.evaluate_polarized(density[0], density[1])
+    e_xc = _xc_on_grid(setup, density).energy(setup.volume)
     own = list(setup.owned)
     ks = [setup.channel(j)[1] for j in own]
     mine = [wavefunctions[j] for j in own]
@@ -482,7 +482,7 @@ def _energy(setup: SystemSetup, wavefunctions, occupations, density) -> EnergyTe
         kinetic=float(band_terms[0]),
         local_pseudopotential=e_loc,
         hartree=hartree_energy(n_g, setup.g2, setup.volume),
-        exchange_correlation=xc_energy(total, eps, setup.volume),
+        exchange_correlation=e_xc,
         ewald=setup.ewald,
         pseudopotential_g0=e_g0,
         nonlocal_pseudopotential=float(band_terms[1]),
