@@ -38,10 +38,63 @@ def exchange_correlation_on_grid(functional, density: np.ndarray, fft=None,
 
     ``fft`` (a :class:`pwsolid.fft.FFTGrid`) and ``g_vectors`` (Cartesian G of the
     grid, shape ``(*grid, 3)``, bohr^-1) are needed only by gradient-dependent
-    functionals.
+    functionals (``functional.needs_gradients``).
+
+    Notes
+    -----
+    For a gradient functional the gradients are spectral, ``grad n = F^-1[i G n(G)]``
+    (real part), and the potential is
+    ``v = de/dn - div(de/d grad n)`` with the divergence taken the same way:
+    unpolarised ``de/d grad n = 2 (de/dsigma) grad n``; polarised
+    ``de/d grad n_up = 2 (de/dsigma_uu) grad n_up + (de/dsigma_ud) grad n_down`` and
+    likewise for down. The real part of the spectral derivative is an antisymmetric
+    operator on the grid, so this ``v`` is the exact derivative of the grid sum
+    ``E = (Omega/N) sum_r e(r)`` with respect to the density at each point, divided by
+    ``Omega/N`` (including the grid's Nyquist planes): energy and potential agree to
+    rounding.
     """
+    if not getattr(functional, "needs_gradients", False):
+        if density.ndim == 3:
+            eps, v = functional.evaluate(density)
+            return GridExchangeCorrelation(density * eps, v)
+        eps, v_up, v_down = functional.evaluate_polarized(density[0], density[1])
+        return GridExchangeCorrelation(density.sum(axis=0) * eps, np.stack([v_up, v_down]))
+    if fft is None or g_vectors is None:
+        raise ValueError(f"functional '{functional.name}' depends on the density gradient: "
+                         "pass the FFT grid and its G vectors")
     if density.ndim == 3:
-        eps, v = functional.evaluate(density)
-        return GridExchangeCorrelation(density * eps, v)
-    eps, v_up, v_down = functional.evaluate_polarized(density[0], density[1])
-    return GridExchangeCorrelation(density.sum(axis=0) * eps, np.stack([v_up, v_down]))
+        (grad,) = _gradients(fft, g_vectors, density[None])
+        e, de_dn, de_dsigma = functional.evaluate_gradient(density, _dot(grad, grad))
+        (divergence,) = _divergences(fft, g_vectors, [2.0 * de_dsigma * grad])
+        return GridExchangeCorrelation(e, de_dn - divergence)
+    grad_up, grad_down = _gradients(fft, g_vectors, density)
+    e, d_up, d_down, d_uu, d_ud, d_dd = functional.evaluate_gradient_polarized(
+        density[0], density[1], _dot(grad_up, grad_up), _dot(grad_up, grad_down),
+        _dot(grad_down, grad_down))
+    div_up, div_down = _divergences(fft, g_vectors, [
+        2.0 * d_uu * grad_up + d_ud * grad_down, 2.0 * d_dd * grad_down + d_ud * grad_up])
+    return GridExchangeCorrelation(e, np.stack([d_up - div_up, d_down - div_down]))
+
+
+def _dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Point-wise dot product of two vector fields of shape (3, *grid)."""
+    return np.einsum("a...,a...->...", a, b)
+
+
+def _gradients(fft, g_vectors: np.ndarray, fields: np.ndarray) -> list[np.ndarray]:
+    """Spectral gradients (3, *grid) of a stack of real fields (n_fields, *grid)."""
+    coefficients = fft.to_reciprocal(fields.astype(complex))
+    g = np.moveaxis(g_vectors, -1, 0)
+    derivatives = fft.to_real((1j * g[None] * coefficients[:, None]).reshape(
+        -1, *fields.shape[1:])).real
+    return list(derivatives.reshape(len(fields), 3, *fields.shape[1:]))
+
+
+def _divergences(fft, g_vectors: np.ndarray, vectors: list[np.ndarray]) -> list[np.ndarray]:
+    """Spectral divergences (*grid) of vector fields, each of shape (3, *grid)."""
+    stack = np.stack(vectors)
+    shape = stack.shape
+    coefficients = fft.to_reciprocal(stack.reshape(-1, *shape[2:]).astype(complex))
+    g = np.moveaxis(g_vectors, -1, 0)
+    summed = np.einsum("fa...,a...->f...", coefficients.reshape(shape), 1j * g)
+    return list(fft.to_real(summed).real)

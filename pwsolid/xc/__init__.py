@@ -2,7 +2,9 @@
 
 Kernels (:mod:`pwsolid.xc.lda`, :mod:`pwsolid.xc.extra_lda`) take densities in
 bohr^-3 of any shape and return energies per electron and potentials in hartree of
-the same shape. Functionals are chosen by name through :func:`get_functional`
+the same shape; the Perdew-Burke-Ernzerhof gradient kernels (:mod:`pwsolid.xc.gga`)
+also take the gradient invariants and return the energy per volume and its partial
+derivatives. Functionals are chosen by name through :func:`get_functional`
 (:mod:`pwsolid.xc.registry`), loaded from users' Python files
 (:mod:`pwsolid.xc.user`) and judged against exact conditions of the uniform gas
 (:mod:`pwsolid.xc.conditions`) and its quantum Monte Carlo energies
@@ -24,14 +26,19 @@ from .extra_lda import (HL_FERROMAGNETIC, HL_PARAMAGNETIC, VBH_FERROMAGNETIC,
                         von_barth_hedin_correlation, von_barth_hedin_correlation_polarized,
                         vwn_correlation, vwn_correlation_polarized, wigner_correlation,
                         wigner_correlation_polarized)
-from .registry import (FILE_PREFIX, FUNCTIONALS, SLATER_EXCHANGE, Functional,
+from .gga import (PBE_BETA, PBE_GAMMA, PBE_KAPPA, PBE_MU, pbe_correlation,
+                  pbe_correlation_polarized, pbe_exchange, pbe_exchange_enhancement,
+                  pbe_exchange_polarized, pbe_gradient_correction)
+from .registry import (FILE_PREFIX, FUNCTIONALS, PBE_CORRELATION, PBE_EXCHANGE,
+                       SLATER_EXCHANGE, Functional, GradientKernel, PolarizedGradientKernel,
                        PolarizedKernel, UnpolarizedKernel, available_functionals,
-                       combine_exchange_correlation, get_functional, register_functional,
-                       unregister_functional)
+                       combine_exchange_correlation, get_functional, gradient_functional,
+                       register_functional, unregister_functional)
 from .derivatives import DEFAULT_RELATIVE_STEP, density_derivative, spin_derivatives
 from .user import ENERGY_TERMS, load_user_functional
-from .conditions import (GELL_MANN_BRUECKNER_C0, LIEB_OXFORD_LAMBDA, ConditionResult,
-                         FunctionalParts, check_exact_conditions, functional_parts)
+from .conditions import (GELL_MANN_BRUECKNER_C0, LIEB_OXFORD_LAMBDA,
+                         LOCAL_EXCHANGE_ENHANCEMENT_BOUND, ConditionResult, FunctionalParts,
+                         check_exact_conditions, functional_parts)
 from .monte_carlo_data import (CEPERLEY_ALDER_1980, MonteCarloPoint,
                                free_gas_exchange_energy, free_gas_kinetic_energy)
 
@@ -74,13 +81,28 @@ __all__ = [
     "hedin_lundqvist_correlation_polarized",
     "von_barth_hedin_correlation",
     "von_barth_hedin_correlation_polarized",
+    "PBE_KAPPA",
+    "PBE_BETA",
+    "PBE_GAMMA",
+    "PBE_MU",
+    "pbe_exchange_enhancement",
+    "pbe_gradient_correction",
+    "pbe_exchange",
+    "pbe_exchange_polarized",
+    "pbe_correlation",
+    "pbe_correlation_polarized",
     "UnpolarizedKernel",
     "PolarizedKernel",
+    "GradientKernel",
+    "PolarizedGradientKernel",
     "Functional",
     "FUNCTIONALS",
     "FILE_PREFIX",
     "SLATER_EXCHANGE",
+    "PBE_EXCHANGE",
+    "PBE_CORRELATION",
     "combine_exchange_correlation",
+    "gradient_functional",
     "get_functional",
     "register_functional",
     "unregister_functional",
@@ -92,6 +114,7 @@ __all__ = [
     "load_user_functional",
     "GELL_MANN_BRUECKNER_C0",
     "LIEB_OXFORD_LAMBDA",
+    "LOCAL_EXCHANGE_ENHANCEMENT_BOUND",
     "ConditionResult",
     "FunctionalParts",
     "functional_parts",

@@ -30,6 +30,27 @@ Sources of the conditions (tags of the project's reference notes):
   uniform gas ``eps_xc >= -lambda n^(1/3)``, with ``lambda = 1.679`` (E. H. Lieb and
   S. Oxford, Int. J. Quantum Chem. 19, 427 (1981); value from memory);
 * the potentials are the derivatives of the energy density ``n eps_xc`` [C].
+
+Functionals that depend on the density gradient (``functional.needs_gradients``) are
+judged at zero gradient by all of the above, and by six more conditions:
+
+* at zero gradient they reduce to their local parent (``functional.lda_parent``), for
+  the Perdew-Burke-Ernzerhof functional Perdew-Wang 1992 with Slater exchange, to
+  rounding (J. P. Perdew, K. Burke and M. Ernzerhof, Phys. Rev. Lett. 77, 3865 (1996),
+  Eqs. 3 and 13);
+* the local Lieb-Oxford bound on the exchange enhancement factor,
+  ``F_x(s) <= lambda / (2^(1/3) C_x) = 2.2733 / 2^(1/3) = 1.8044`` for all s, the
+  origin of kappa = 0.804 (PBE 1996, below Eq. 14) [C from lambda];
+* uniform scaling ``e_x(l^3 n, l^8 |grad n|^2) = l^4 e_x(n, |grad n|^2)`` and spin
+  scaling (Oliver & Perdew 1979) of exchange at non-zero reduced gradients [C];
+* the second-order gradient coefficient of correlation: the gradient term
+  ``H = eps_c(n, grad n) - eps_c(n, 0) -> beta phi^3 t^2`` as t -> 0 with
+  beta = 0.066725 (S.-K. Ma and K. A. Brueckner, Phys. Rev. 165, 18 (1968), from
+  memory; value and form as printed in PBE 1996, Eqs. 4, 7 and 8);
+* correlation vanishes in the rapidly varying limit, ``H -> -eps_c`` as t -> infinity
+  (PBE 1996, text after Eq. 7);
+* the gradient kernel's derivatives in the spin densities and the three gradient
+  invariants equal numerical derivatives of its energy per volume [C].
 """
 
 from __future__ import annotations
@@ -41,8 +62,10 @@ import numpy as np
 from numpy.typing import NDArray
 
 from .derivatives import density_derivative, spin_derivatives
-from .lda import density_from_radius, slater_exchange, slater_exchange_polarized
-from .registry import SLATER_EXCHANGE, Functional
+from .gga import correlation_gradient_squared, reduced_gradient_squared
+from .lda import (SLATER_EXCHANGE_COEFFICIENT, density_from_radius, slater_exchange,
+                  slater_exchange_polarized)
+from .registry import SLATER_EXCHANGE, Functional, get_functional
 
 __all__ = [
     "ConditionResult",
@@ -54,6 +77,9 @@ __all__ = [
     "GELL_MANN_BRUECKNER_C0",
     "LIEB_OXFORD_LAMBDA",
     "WIGNER_CRYSTAL_CONSTANT",
+    "LOCAL_EXCHANGE_ENHANCEMENT_BOUND",
+    "GRADIENT_COEFFICIENT_BETA",
+    "CONDITION_REDUCED_GRADIENTS",
 ]
 
 Array = NDArray[np.float64]
@@ -70,6 +96,15 @@ GELL_MANN_BRUECKNER_C0: float = (1.0 - math.log(2.0)) / math.pi ** 2
 LIEB_OXFORD_LAMBDA: float = 1.679
 #: Electron-crystal (bcc) energy per electron ~ -0.896/rs Ha at low density, from memory.
 WIGNER_CRYSTAL_CONSTANT: float = 0.896
+
+#: lambda / (2^(1/3) C_x) = 1.8044: the local Lieb-Oxford bound on an exchange
+#: enhancement factor of the spin-scaled form (the reference notes, table 1b).
+LOCAL_EXCHANGE_ENHANCEMENT_BOUND: float = (LIEB_OXFORD_LAMBDA / SLATER_EXCHANGE_COEFFICIENT
+                                           / 2.0 ** (1.0 / 3.0))
+#: beta = 0.066725 of the gradient expansion of correlation, as printed in PBE 1996.
+GRADIENT_COEFFICIENT_BETA: float = 0.066725
+#: Reduced gradients s of the exchange checks, from the uniform gas to far tails.
+CONDITION_REDUCED_GRADIENTS: Array = np.concatenate([[0.0], np.geomspace(1e-2, 1e4, 25)])
 
 _EXACT_EXCHANGE_RS = -0.75 * (9.0 / (4.0 * math.pi ** 2)) ** (1.0 / 3.0)  # -0.4581653
 _CBRT2 = 2.0 ** (1.0 / 3.0)
@@ -89,6 +124,19 @@ _TAIL_PROBES_RS = (1e5, 1e6)
 _TAIL_TOLERANCE = 0.02
 # potentials vs numerical derivatives accurate to ~1e-10 relative (derivatives module).
 _POTENTIAL_TOLERANCE = 1e-6
+# the zero-gradient limit and the gradient scalings are identities of the formulas.
+_LIMIT_TOLERANCE = 1e-12
+# beta phi^3 t^2 at t = 1e-3: the next order in t^2 changes H/t^2 by about
+# (beta/gamma) t^2/2 ~ 1e-6, the six printed digits of beta differ from the value in
+# common use by 7e-6; 1e-4 fails any other coefficient or another power of phi.
+_SMALL_T = 1e-3
+_COEFFICIENT_TOLERANCE = 1e-4
+# H + eps_c at t = 1e4 is ~ eps_c / (A t^2)^2 for A of order 1e-3..1e2.
+_LARGE_T = 1e4
+_VANISHING_TOLERANCE = 1e-6
+# fourth-order differences of the gradient kernel with steps 1e-4 of the variable's
+# natural scale (n_sigma, n_sigma^(8/3)): truncation ~1e-16, rounding ~1e-12 of e.
+_GRADIENT_STEP = 1e-4
 
 
 @dataclass(frozen=True)
@@ -382,7 +430,11 @@ def check_exact_conditions(functional: Functional) -> list[ConditionResult]:
         In this order: ``exchange-uniform-scaling``, ``exchange-spin-scaling``,
         ``correlation-negative``, ``polarisation-weakens-correlation``,
         ``high-density-logarithm``, ``low-density-inverse-rs``,
-        ``lieb-oxford-bound``, ``potential-is-energy-derivative``. Conditions that
+        ``lieb-oxford-bound``, ``potential-is-energy-derivative``; for a
+        functional that needs gradients then ``zero-gradient-limit``,
+        ``exchange-enhancement-bound``, ``exchange-scaling-with-gradient``,
+        ``correlation-gradient-coefficient``, ``correlation-vanishes-at-large-gradient``
+        and ``gradient-derivatives-consistency``. Conditions that
         cannot be tested (no such part, no spin-polarised form) have
         ``passed = None``. A failed condition is a finding, never an exception.
 
@@ -413,4 +465,229 @@ def check_exact_conditions(functional: Functional) -> list[ConditionResult]:
         results += [_correlation_negative(c), _polarisation_weakens(c),
                     _high_density_logarithm(c), _low_density_tail(c)]
     results += [_lieb_oxford(functional), _potential_consistency(functional)]
+    if functional.needs_gradients:
+        results += _gradient_conditions(functional, parts)
     return results
+
+
+# --- gradient functionals ----------------------------------------------------------
+
+def _gradient_invariants(n: Array, zeta: Array, sigma: Array) -> tuple[Array, ...]:
+    """(n_up, n_down, sigma_uu, sigma_ud, sigma_dd) for grad n_s = n_s grad n / n.
+
+    With parallel spin gradients in proportion to the spin densities zeta is
+    constant, and ``sigma_uu + 2 sigma_ud + sigma_dd = sigma``.
+    """
+    up, down = 0.5 * n * (1.0 + zeta), 0.5 * n * (1.0 - zeta)
+    w_up, w_down = 0.5 * (1.0 + zeta), 0.5 * (1.0 - zeta)
+    return up, down, w_up ** 2 * sigma, w_up * w_down * sigma, w_down ** 2 * sigma
+
+
+def _energy_with_gradient(part: Functional, n: Array, zeta: Array, sigma: Array) -> Array:
+    """Energy per volume of ``part`` (polarised form where it exists)."""
+    if part.gradient_polarized is not None:
+        return part.evaluate_gradient_polarized(*_gradient_invariants(n, zeta, sigma))[0]
+    return part.evaluate_gradient(n, sigma)[0]
+
+
+_NO_GRADIENT_EXCHANGE = "no exchange part that depends on gradients"
+_NO_GRADIENT_CORRELATION = "no correlation part that depends on gradients"
+
+
+def _lacks_gradients(part: Functional | None) -> bool:
+    return part is None or not part.needs_gradients
+
+
+def _zero_gradient_limit(functional: Functional) -> ConditionResult:
+    name = "zero-gradient-limit"
+    source = "Perdew, Burke & Ernzerhof, Phys. Rev. Lett. 77, 3865 (1996), Eqs. 3, 13"
+    if functional.lda_parent is None:
+        return _not_applicable(name, "the functional names no local parent", source)
+    parent = get_functional(functional.lda_parent)
+    n = density_from_radius(CONDITION_RS)
+    zero = np.zeros_like(n)
+    e, de_dn, _ = functional.evaluate_gradient(n, zero)
+    eps_p, v_p = parent.evaluate(n)
+    pairs = [(e / n, eps_p), (de_dn, v_p)]
+    if functional.gradient_polarized is not None and parent.has_spin_polarized_form:
+        rs, z = np.meshgrid(CONDITION_RS, CONDITION_ZETA, indexing="ij")
+        m = density_from_radius(rs)
+        arrays = _gradient_invariants(m, z, np.zeros_like(m))
+        e, d_up, d_down, *_ = functional.evaluate_gradient_polarized(*arrays)
+        eps_p, v_up, v_down = parent.evaluate_polarized(arrays[0], arrays[1])
+        pairs += [(e / m, eps_p), (d_up, v_up), (d_down, v_down)]
+    worst = float(max(np.max(np.abs(a - b) / np.maximum(np.abs(b), 1e-300))
+                      for a, b in pairs))
+    return ConditionResult(
+        name, bool(worst <= _LIMIT_TOLERANCE),
+        f"at zero gradient energy and potentials must equal those of "
+        f"'{parent.name}' on rs 0.01..100, zeta 0..1: largest relative difference "
+        f"{worst:.1e} (tolerance {_LIMIT_TOLERANCE:.0e})", worst, _LIMIT_TOLERANCE,
+        source)
+
+
+def _sigma_for_reduced_gradient(n: Array, s: Array) -> Array:
+    return s * s / reduced_gradient_squared(n, np.ones_like(n))
+
+
+def _enhancement(exchange: Functional, n: Array, s: Array) -> Array:
+    """F_x = e_x(n, grad n) / e_x(n, 0) of the unpolarised form."""
+    sigma = _sigma_for_reduced_gradient(n, s)
+    return (exchange.evaluate_gradient(n, sigma)[0]
+            / exchange.evaluate_gradient(n, np.zeros_like(n))[0])
+
+
+def _exchange_enhancement_bound(exchange: Functional | None) -> ConditionResult:
+    name = "exchange-enhancement-bound"
+    source = ("Lieb & Oxford, Int. J. Quantum Chem. 19, 427 (1981), locally; "
+              "Perdew, Burke & Ernzerhof, Phys. Rev. Lett. 77, 3865 (1996), Eq. 14")
+    if _lacks_gradients(exchange):
+        return _not_applicable(name, _NO_GRADIENT_EXCHANGE, source)
+    rs, s = np.meshgrid(CONDITION_RS, CONDITION_REDUCED_GRADIENTS, indexing="ij")
+    enhancement = _enhancement(exchange, density_from_radius(rs), s)
+    worst = float(np.max(enhancement))
+    limit = float(enhancement[0, -1])
+    bound = LOCAL_EXCHANGE_ENHANCEMENT_BOUND
+    return ConditionResult(
+        name, bool(worst <= bound and np.all(enhancement >= 1.0 - _LIMIT_TOLERANCE)),
+        f"1 <= F_x(s) <= lambda/(2^(1/3) C_x) = {bound:.4f} on s 0..{s.max():g}, rs "
+        f"0.01..100: largest F_x is {worst:.6f}; F_x(s = {s.max():g}) = {limit:.6f} "
+        f"(the limit 1 + kappa)", worst, bound, source)
+
+
+def _exchange_scaling_with_gradient(exchange: Functional | None) -> ConditionResult:
+    name = "exchange-scaling-with-gradient"
+    source = ("uniform density scaling [C]; Oliver & Perdew, Phys. Rev. A 20, 397 (1979)")
+    if _lacks_gradients(exchange):
+        return _not_applicable(name, _NO_GRADIENT_EXCHANGE, source)
+    rs, s = np.meshgrid(CONDITION_RS, CONDITION_REDUCED_GRADIENTS[1::4], indexing="ij")
+    n = density_from_radius(rs)
+    sigma = _sigma_for_reduced_gradient(n, s)
+    scale = 1.7
+    e = exchange.evaluate_gradient(n, sigma)[0]
+    scaled = exchange.evaluate_gradient(scale ** 3 * n, scale ** 8 * sigma)[0]
+    deviations = [np.abs(scaled / (scale ** 4 * e) - 1.0)]
+    span = "uniform scaling"
+    if exchange.gradient_polarized is not None:
+        # independent spin gradients: n_down with its own reduced gradient s/2
+        up, down = 0.7 * n, 0.3 * n
+        s_uu = _sigma_for_reduced_gradient(up, s)
+        s_dd = _sigma_for_reduced_gradient(down, 0.5 * s)
+        s_ud = 0.3 * np.sqrt(s_uu * s_dd)
+        polarized = exchange.evaluate_gradient_polarized(up, down, s_uu, s_ud, s_dd)[0]
+        spin_scaled = 0.5 * (exchange.evaluate_gradient(2.0 * up, 4.0 * s_uu)[0]
+                             + exchange.evaluate_gradient(2.0 * down, 4.0 * s_dd)[0])
+        deviations.append(np.abs(polarized / spin_scaled - 1.0))
+        span = "uniform scaling and spin scaling at zeta = 0.4"
+    worst = float(max(np.max(d) for d in deviations))
+    return ConditionResult(
+        name, bool(worst <= _LIMIT_TOLERANCE),
+        f"e_x(l^3 n, l^8 |grad n|^2) = l^4 e_x (l = {scale}) and e_x[n_up, n_down] = "
+        f"(e_x[2 n_up] + e_x[2 n_down])/2 with gradients, s up to {s.max():g} "
+        f"({span}): largest relative deviation {worst:.1e} (tolerance "
+        f"{_LIMIT_TOLERANCE:.0e})", worst, _LIMIT_TOLERANCE, source)
+
+
+def _gradient_term(correlation: Functional, rs: Array, zeta: Array,
+                   t: float) -> tuple[Array, Array, Array]:
+    """H = eps_c(n, grad n) - eps_c(n, 0) at reduced gradient t, eps_c(n, 0) and t^2."""
+    n = density_from_radius(rs)
+    t2 = np.full(n.shape, t * t)
+    sigma = t2 / correlation_gradient_squared(n, zeta, np.ones_like(n))
+    local = _energy_with_gradient(correlation, n, zeta, np.zeros_like(n)) / n
+    return _energy_with_gradient(correlation, n, zeta, sigma) / n - local, local, t2
+
+
+def _correlation_zetas(correlation: Functional) -> Array:
+    return CONDITION_ZETA if correlation.gradient_polarized is not None else np.zeros(1)
+
+
+def _correlation_gradient_coefficient(correlation: Functional | None) -> ConditionResult:
+    name = "correlation-gradient-coefficient"
+    source = ("Ma & Brueckner, Phys. Rev. 165, 18 (1968); Perdew, Burke & Ernzerhof, "
+              "Phys. Rev. Lett. 77, 3865 (1996), Eqs. 4, 7, 8")
+    if _lacks_gradients(correlation):
+        return _not_applicable(name, _NO_GRADIENT_CORRELATION, source)
+    rs, zeta = np.meshgrid(CONDITION_RS, _correlation_zetas(correlation), indexing="ij")
+    h, _, t2 = _gradient_term(correlation, rs, zeta, _SMALL_T)
+    phi = 0.5 * (np.cbrt(1.0 + zeta) ** 2 + np.cbrt(1.0 - zeta) ** 2)
+    coefficient = h / (phi ** 3 * t2)
+    deviation = np.abs(coefficient / GRADIENT_COEFFICIENT_BETA - 1.0)
+    worst = float(np.max(deviation))
+    return ConditionResult(
+        name, bool(worst <= _COEFFICIENT_TOLERANCE),
+        f"H / (phi^3 t^2) at t = {_SMALL_T:g} must be beta = {GRADIENT_COEFFICIENT_BETA} "
+        f"on rs 0.01..100, zeta 0..1: found {float(coefficient[0, 0]):.7f} at rs = 0.01, "
+        f"zeta = 0; largest relative deviation {worst:.1e} (tolerance "
+        f"{_COEFFICIENT_TOLERANCE:.0e})", worst, _COEFFICIENT_TOLERANCE, source)
+
+
+def _correlation_vanishes(correlation: Functional | None) -> ConditionResult:
+    name = "correlation-vanishes-at-large-gradient"
+    source = "Perdew, Burke & Ernzerhof, Phys. Rev. Lett. 77, 3865 (1996), after Eq. 7"
+    if _lacks_gradients(correlation):
+        return _not_applicable(name, _NO_GRADIENT_CORRELATION, source)
+    rs, zeta = np.meshgrid(CONDITION_RS, _correlation_zetas(correlation), indexing="ij")
+    h, local, _ = _gradient_term(correlation, rs, zeta, _LARGE_T)
+    remainder = np.abs((local + h) / local)
+    worst = float(np.max(remainder))
+    return ConditionResult(
+        name, bool(worst <= _VANISHING_TOLERANCE),
+        f"eps_c(n, grad n) / eps_c(n, 0) at t = {_LARGE_T:g} must vanish (H -> -eps_c) "
+        f"on rs 0.01..100, zeta 0..1: largest |ratio| {worst:.1e} (tolerance "
+        f"{_VANISHING_TOLERANCE:.0e})", worst, _VANISHING_TOLERANCE, source)
+
+
+def _central_difference(energy, arrays: list[Array], index: int, step: Array) -> Array:
+    total = np.zeros_like(step)
+    for offset, weight in zip(_CENTRAL_OFFSETS_4, _CENTRAL_WEIGHTS_4):
+        shifted = list(arrays)
+        shifted[index] = arrays[index] + offset * step
+        total += weight * energy(*shifted)
+    return total / step
+
+
+_CENTRAL_OFFSETS_4 = (-2.0, -1.0, 1.0, 2.0)
+_CENTRAL_WEIGHTS_4 = (1.0 / 12.0, -8.0 / 12.0, 8.0 / 12.0, -1.0 / 12.0)
+
+
+def _gradient_derivatives(functional: Functional) -> ConditionResult:
+    name = "gradient-derivatives-consistency"
+    source = "definition of the partial derivatives [C]"
+    rs, s = np.meshgrid(CONDITION_RS, CONDITION_REDUCED_GRADIENTS[1:20:3], indexing="ij")
+    n = density_from_radius(rs)
+    sigma = _sigma_for_reduced_gradient(n, s)
+    scale_sigma = n ** (8.0 / 3.0)
+    if functional.gradient_polarized is not None:
+        up, down = 0.65 * n, 0.35 * n
+        arrays = [up, down, 0.6 * sigma, 0.1 * sigma, 0.2 * sigma]
+        scales = [up, down, scale_sigma, scale_sigma, scale_sigma]
+        kernel = functional.evaluate_gradient_polarized
+        span = "n_up, n_down, sigma_uu, sigma_ud, sigma_dd at zeta = 0.3"
+    else:
+        arrays, scales = [n, sigma], [n, scale_sigma]
+        kernel = functional.evaluate_gradient
+        span = "n and sigma"
+    analytic = kernel(*arrays)
+    energy = analytic[0]
+    worst = 0.0
+    for index, scale in enumerate(scales):
+        numerical = _central_difference(lambda *a: kernel(*a)[0], arrays, index,
+                                        _GRADIENT_STEP * scale)
+        error = np.abs(analytic[index + 1] - numerical) * scale / np.abs(energy)
+        worst = max(worst, float(np.max(error)))
+    return ConditionResult(
+        name, bool(worst <= _POTENTIAL_TOLERANCE),
+        f"derivatives of the energy per volume in {span} against fourth-order "
+        f"numerical ones on rs 0.01..100, s 0.01..{s.max():.3g}: largest error "
+        f"{worst:.1e} of e / (variable scale) (tolerance {_POTENTIAL_TOLERANCE:.0e})",
+        worst, _POTENTIAL_TOLERANCE, source)
+
+
+def _gradient_conditions(functional: Functional,
+                         parts: FunctionalParts) -> list[ConditionResult]:
+    exchange = None if parts.exchange_assumed else parts.exchange
+    return [_zero_gradient_limit(functional), _exchange_enhancement_bound(exchange),
+            _exchange_scaling_with_gradient(exchange),
+            _correlation_gradient_coefficient(parts.correlation),
+            _correlation_vanishes(parts.correlation), _gradient_derivatives(functional)]

@@ -1,7 +1,10 @@
 """Exchange-correlation functionals by name (layer 1).
 
-A :class:`Functional` bundles the kernels of :mod:`pwsolid.xc.lda` and
-:mod:`pwsolid.xc.extra_lda` under a registry name. :func:`get_functional` turns
+A :class:`Functional` bundles the kernels of :mod:`pwsolid.xc.lda`,
+:mod:`pwsolid.xc.extra_lda` and :mod:`pwsolid.xc.gga` under a registry name. A
+gradient-dependent functional carries gradient kernels (energy per volume and its
+derivatives in the density and the gradient invariants) besides its local kernels,
+which give its uniform-gas (zero-gradient) limit. :func:`get_functional` turns
 what a user wrote (a name, ``"file:path/to/functional.py"``, a callable, or a ready
 :class:`Functional`) into one, and is the only place that knows the names.
 Functionals loaded from files (:mod:`pwsolid.xc.user`) or built in Python can be
@@ -21,17 +24,24 @@ from .extra_lda import (hedin_lundqvist_correlation, hedin_lundqvist_correlation
                         von_barth_hedin_correlation, von_barth_hedin_correlation_polarized,
                         vwn_correlation, vwn_correlation_polarized, wigner_correlation,
                         wigner_correlation_polarized)
-from .lda import (pw92_correlation, pw92_correlation_polarized, pz81_correlation,
+from .gga import (pbe_correlation, pbe_correlation_polarized, pbe_exchange,
+                  pbe_exchange_polarized)
+from .lda import (DENSITY_FLOOR, pw92_correlation, pw92_correlation_polarized, pz81_correlation,
                   pz81_correlation_polarized, slater_exchange, slater_exchange_polarized)
 
 __all__ = [
     "UnpolarizedKernel",
     "PolarizedKernel",
+    "GradientKernel",
+    "PolarizedGradientKernel",
     "Functional",
     "FUNCTIONALS",
     "FILE_PREFIX",
     "SLATER_EXCHANGE",
+    "PBE_EXCHANGE",
+    "PBE_CORRELATION",
     "combine_exchange_correlation",
+    "gradient_functional",
     "get_functional",
     "register_functional",
     "unregister_functional",
@@ -54,9 +64,23 @@ class PolarizedKernel(Protocol):
     def __call__(self, n_up: Array, n_down: Array, /) -> tuple[Array, Array, Array]: ...
 
 
+class GradientKernel(Protocol):
+    """``f(n, sigma) -> (e, de/dn, de/dsigma)``, ``e`` per volume, ``sigma = |grad n|^2``."""
+
+    def __call__(self, n: Array, sigma: Array, /) -> tuple[Array, Array, Array]: ...
+
+
+class PolarizedGradientKernel(Protocol):
+    """``f(n_up, n_down, sigma_uu, sigma_ud, sigma_dd) -> (e, de/dn_up, de/dn_down,
+    de/dsigma_uu, de/dsigma_ud, de/dsigma_dd)`` (see :mod:`pwsolid.xc.gga`)."""
+
+    def __call__(self, n_up: Array, n_down: Array, sigma_uu: Array, sigma_ud: Array,
+                 sigma_dd: Array, /) -> tuple[Array, ...]: ...
+
+
 @dataclass(frozen=True)
 class Functional:
-    """A local exchange-correlation functional.
+    """An exchange-correlation functional: local, or of the density and its gradient.
 
     Parameters
     ----------
@@ -77,6 +101,13 @@ class Functional:
         correlation).
     origin : str
         Where it came from: ``"built-in"``, ``"file:<path>"`` or ``"callable"``.
+    gradient, gradient_polarized : GradientKernel, PolarizedGradientKernel or None
+        Given for a functional that depends on the density gradient
+        (:attr:`needs_gradients`); its ``unpolarized``/``polarized`` kernels are then
+        its zero-gradient (uniform-gas) limit.
+    lda_parent : str or None
+        Registry name of the local functional a gradient functional reduces to at
+        zero gradient.
     """
 
     name: str
@@ -86,6 +117,15 @@ class Functional:
     exchange: Functional | None = field(default=None, repr=False, compare=False)
     correlation: Functional | None = field(default=None, repr=False, compare=False)
     origin: str = field(default="built-in", compare=False)
+    gradient: GradientKernel | None = field(default=None, repr=False, compare=False)
+    gradient_polarized: PolarizedGradientKernel | None = field(default=None, repr=False,
+                                                               compare=False)
+    lda_parent: str | None = field(default=None, compare=False)
+
+    @property
+    def needs_gradients(self) -> bool:
+        """Whether the functional depends on the density gradient."""
+        return self.gradient is not None
 
     @property
     def has_parts(self) -> bool:
@@ -134,6 +174,49 @@ class Functional:
         n_down = np.asarray(n_down, dtype=np.float64)
         return self._checked(self.polarized(n_up, n_down), 3, n_up.shape)
 
+    def evaluate_gradient(self, n: ArrayLike, sigma: ArrayLike) -> tuple[Array, ...]:
+        """Energy per volume and its derivatives, spin-unpolarised.
+
+        Parameters
+        ----------
+        n : array_like, float64, bohr^-3
+        sigma : array_like, float64, bohr^-8
+            ``|grad n|^2``, shape of ``n``.
+
+        Returns
+        -------
+        e, de/dn, de/dsigma : ndarray, float64
+            For a local functional ``e = n eps_xc``, ``de/dn = v_xc`` and
+            ``de/dsigma = 0``.
+        """
+        n = np.asarray(n, dtype=np.float64)
+        if self.gradient is None:
+            eps, v = self.evaluate(n)
+            return n * eps, v, np.zeros_like(n)
+        return self._checked(self.gradient(n, np.asarray(sigma, dtype=np.float64)), 3,
+                             n.shape)
+
+    def evaluate_gradient_polarized(self, n_up: ArrayLike, n_down: ArrayLike,
+                                    sigma_uu: ArrayLike, sigma_ud: ArrayLike,
+                                    sigma_dd: ArrayLike) -> tuple[Array, ...]:
+        """Energy per volume and its six derivatives, spin-polarised.
+
+        Returns ``(e, de/dn_up, de/dn_down, de/dsigma_uu, de/dsigma_ud, de/dsigma_dd)``
+        (the invariants of :mod:`pwsolid.xc.gga`); a local functional has zero
+        gradient derivatives.
+        """
+        up = np.asarray(n_up, dtype=np.float64)
+        down = np.asarray(n_down, dtype=np.float64)
+        if self.gradient is None:
+            eps, v_up, v_down = self.evaluate_polarized(up, down)
+            zero = np.zeros_like(up)
+            return (up + down) * eps, v_up, v_down, zero, zero, zero
+        if self.gradient_polarized is None:
+            raise InputError(f"functional '{self.name}' has no spin-polarised form",
+                             key=_KEY, value=self.name)
+        sigmas = (np.asarray(s, dtype=np.float64) for s in (sigma_uu, sigma_ud, sigma_dd))
+        return self._checked(self.gradient_polarized(up, down, *sigmas), 6, up.shape)
+
     def _checked(self, result: Any, count: int, shape: tuple[int, ...]) -> tuple:
         # Built-in kernels always pass; this catches a user callable of the wrong shape.
         try:
@@ -148,8 +231,8 @@ class Functional:
 
 
 def combine_exchange_correlation(name: str, description: str, exchange: Functional,
-                                 correlation: Functional, *,
-                                 origin: str = "built-in") -> Functional:
+                                 correlation: Functional, *, origin: str = "built-in",
+                                 lda_parent: str | None = None) -> Functional:
     """The sum of an exchange and a correlation functional, keeping both as parts.
 
     Parameters
@@ -158,13 +241,14 @@ def combine_exchange_correlation(name: str, description: str, exchange: Function
         Of the combined functional.
     exchange, correlation : Functional
         The parts; the spin-polarised form exists when both parts have one.
-    origin : str
+    origin, lda_parent : str
         See :class:`Functional`.
 
     Returns
     -------
     Functional
-        ``eps_xc = eps_x + eps_c`` and ``v_xc = v_x + v_c`` (and per spin).
+        ``eps_xc = eps_x + eps_c`` and ``v_xc = v_x + v_c`` (and per spin); when a
+        part needs gradients, so does the sum, with the gradient kernels added.
     """
     def unpolarized(n: Array) -> tuple[Array, Array]:
         eps_x, v_x = exchange.evaluate(n)
@@ -178,8 +262,67 @@ def combine_exchange_correlation(name: str, description: str, exchange: Function
             eps_c, vc_up, vc_down = correlation.evaluate_polarized(n_up, n_down)
             return eps_x + eps_c, vx_up + vc_up, vx_down + vc_down
 
+    gradient = gradient_polarized = None
+    if exchange.needs_gradients or correlation.needs_gradients:
+        def gradient(n: Array, sigma: Array) -> tuple[Array, ...]:
+            return _sum(exchange.evaluate_gradient(n, sigma),
+                        correlation.evaluate_gradient(n, sigma))
+
+        if polarized is not None:
+            def gradient_polarized(*arrays: Array) -> tuple[Array, ...]:
+                return _sum(exchange.evaluate_gradient_polarized(*arrays),
+                            correlation.evaluate_gradient_polarized(*arrays))
+
     return Functional(name, description, unpolarized, polarized, exchange=exchange,
-                      correlation=correlation, origin=origin)
+                      correlation=correlation, origin=origin, gradient=gradient,
+                      gradient_polarized=gradient_polarized, lda_parent=lda_parent)
+
+
+def _sum(first: tuple[Array, ...], second: tuple[Array, ...]) -> tuple[Array, ...]:
+    return tuple(a + b for a, b in zip(first, second))
+
+
+def _per_electron(n: Array, e: Array) -> Array:
+    """``e / n`` where the density is above the floor, 0 elsewhere."""
+    occupied = ~(n <= DENSITY_FLOOR)
+    return np.divide(e, n, out=np.zeros_like(e), where=occupied)
+
+
+def gradient_functional(name: str, description: str, gradient: GradientKernel,
+                        gradient_polarized: PolarizedGradientKernel | None = None, *,
+                        lda_parent: str | None = None, exchange: Functional | None = None,
+                        origin: str = "built-in") -> Functional:
+    """A functional of the density and its gradient from its gradient kernels.
+
+    Its local kernels (``evaluate``, ``evaluate_polarized``) are the gradient kernels
+    at zero gradient: the uniform-gas limit, which the testbench tabulates.
+
+    Parameters
+    ----------
+    name, description, origin : str
+        See :class:`Functional`.
+    gradient, gradient_polarized : callable
+        See :class:`GradientKernel` and :class:`PolarizedGradientKernel`.
+    lda_parent : str or None
+        Registry name of the zero-gradient limit.
+    exchange : Functional or None
+        The exchange part of a pure exchange functional (see :class:`Functional`).
+    """
+    def unpolarized(n: Array) -> tuple[Array, Array]:
+        e, de_dn, _ = gradient(n, np.zeros_like(n))
+        return _per_electron(n, e), de_dn
+
+    polarized = None
+    if gradient_polarized is not None:
+        def polarized(n_up: Array, n_down: Array) -> tuple[Array, Array, Array]:
+            zero = np.zeros_like(n_up)
+            e, d_up, d_down, *_ = gradient_polarized(n_up, n_down, zero, zero, zero)
+            return _per_electron(np.maximum(n_up, 0.0) + np.maximum(n_down, 0.0), e), \
+                d_up, d_down
+
+    return Functional(name, description, unpolarized, polarized, exchange=exchange,
+                      origin=origin, gradient=gradient,
+                      gradient_polarized=gradient_polarized, lda_parent=lda_parent)
 
 
 #: Slater (Dirac) exchange as a part of the combined functionals.
@@ -217,6 +360,22 @@ _REGISTRY: dict[str, Functional] = {
 _REGISTRY["slater-exchange"] = Functional(
     "slater-exchange", "Slater exchange only, no correlation", slater_exchange,
     slater_exchange_polarized, exchange=SLATER_EXCHANGE)
+
+#: Perdew-Burke-Ernzerhof 1996 exchange as a part of the PBE functional.
+PBE_EXCHANGE = gradient_functional(
+    "pbe-exchange", "Perdew-Burke-Ernzerhof 1996 exchange", pbe_exchange,
+    pbe_exchange_polarized, lda_parent="slater-exchange")
+#: Perdew-Burke-Ernzerhof 1996 correlation (on Perdew-Wang 1992) as a part of PBE.
+PBE_CORRELATION = gradient_functional(
+    "pbe-correlation", "Perdew-Burke-Ernzerhof 1996 correlation on Perdew-Wang 1992",
+    pbe_correlation, pbe_correlation_polarized, lda_parent="lda-pw92")
+_REGISTRY["pbe"] = combine_exchange_correlation(
+    "pbe", "GGA: Perdew-Burke-Ernzerhof 1996 exchange and correlation", PBE_EXCHANGE,
+    PBE_CORRELATION, lda_parent="lda-pw92")
+_REGISTRY["pbe-exchange"] = gradient_functional(
+    "pbe-exchange", "Perdew-Burke-Ernzerhof 1996 exchange only, no correlation",
+    pbe_exchange, pbe_exchange_polarized, lda_parent="slater-exchange",
+    exchange=PBE_EXCHANGE)
 
 #: Registry names of the built-in functionals accepted by :func:`get_functional`.
 FUNCTIONALS: tuple[str, ...] = tuple(_REGISTRY)
