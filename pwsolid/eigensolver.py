@@ -13,7 +13,9 @@ from dataclasses import dataclass
 from typing import Protocol
 
 import numpy as np
-from scipy.linalg import eigh, solve_triangular
+from scipy.linalg import eigh
+from scipy.linalg.blas import zgemm, zherk, ztrsm
+from scipy.linalg.lapack import zpotrf
 
 __all__ = ["ApplyOperator", "Preconditioner", "DavidsonResult", "davidson",
            "dense_lowest_eigenpairs", "orthonormalize"]
@@ -58,17 +60,50 @@ class DavidsonResult:
     seconds_blas: float = 0.0
 
 
+def _overlap(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Overlaps S_ij = <a_i|b_j> = sum_k conj(a_ik) b_jk of two row blocks, (n_a, n_b).
+
+    One BLAS call on the blocks as they lie in memory (C-ordered rows are the
+    columns of a Fortran matrix): no conjugated copy of either block.
+    """
+    return zgemm(1.0, a.T, b.T, trans_a=2)
+
+
+def _project_out(basis: np.ndarray, block: np.ndarray) -> None:
+    """block <- block - basis^T (conj(basis) block^T)^T: remove the span of orthonormal rows.
+
+    Two BLAS calls; the update runs in place on the rows of ``block`` (C-contiguous).
+    """
+    coef = _overlap(basis, block)
+    out = zgemm(-1.0, basis.T, coef, 1.0, block.T, 0, 0, 1)
+    if not np.shares_memory(out, block):    # f2py had to copy (non-contiguous block)
+        block.T[...] = out
+
+
+def _orthonormalize_in_place(block: np.ndarray) -> np.ndarray:
+    """Orthonormal rows spanning ``block`` (C-contiguous complex), overwriting it when it can.
+
+    Cholesky QR: S = U^H U from the Gram matrix (one Hermitian rank-k update),
+    then the rows of U^-T B are orthonormal (one triangular solve); both run in
+    BLAS and LAPACK on the block in place. When S is not numerically positive
+    definite, a symmetric (Loewdin) step keeps the well-conditioned directions.
+    """
+    gram = zherk(1.0, block.T, trans=2)            # upper triangle of S
+    upper, info = zpotrf(gram, lower=0, overwrite_a=1)
+    if info == 0:
+        return ztrsm(1.0, upper, block.T, side=1, lower=0, overwrite_b=1).T
+    s = _overlap(block, block)
+    w, u = np.linalg.eigh(s)
+    keep = w > 1e-12 * max(w.max(), 1e-300)
+    return (u[:, keep] / np.sqrt(w[keep])).T @ block
+
+
 def orthonormalize(block: np.ndarray) -> np.ndarray:
-    """Orthonormalise rows by Cholesky QR, falling back to a symmetric (Loewdin) step."""
-    # Gram matrix S_ij = <b_i|b_j>; with S = L L^H the rows of conj(L)^-1 B are orthonormal.
-    s = block.conj() @ block.T
-    try:
-        chol = np.linalg.cholesky(s)
-        return solve_triangular(chol.conj(), block, lower=True, check_finite=False)
-    except np.linalg.LinAlgError:
-        w, u = np.linalg.eigh(s)
-        keep = w > 1e-12 * max(w.max(), 1e-300)
-        return (u[:, keep] / np.sqrt(w[keep])).T @ block
+    """Orthonormalise rows by Cholesky QR, falling back to a symmetric (Loewdin) step.
+
+    Returns a new array; ``block`` is not changed.
+    """
+    return np.ascontiguousarray(_orthonormalize_in_place(np.array(block, dtype=complex)))
 
 
 def dense_lowest_eigenpairs(matrix: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
@@ -90,10 +125,11 @@ class _Clock:
         return out
 
 
-def _checked(block: np.ndarray) -> np.ndarray:
-    if not np.all(np.isfinite(block)):
+def _check_finite(h_sub: np.ndarray) -> None:
+    # Non-finite values in an H block reach the subspace matrix through the
+    # overlaps, so checking the small matrix is enough.
+    if not np.all(np.isfinite(h_sub)):
         raise FloatingPointError("the operator returned non-finite values in the eigensolver")
-    return block
 
 
 def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.ndarray, *,
@@ -132,20 +168,22 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
     n = guess.shape[0]
     n_conv = n if n_converge is None else min(n, n_converge)
     clock = _Clock()
-    v0 = clock(orthonormalize, np.ascontiguousarray(guess, dtype=complex))
+    v0 = clock(_orthonormalize_in_place, np.array(guess, dtype=complex))
     if v0.shape[0] < n:
         raise np.linalg.LinAlgError("starting vectors are linearly dependent")
     n_basis = v0.shape[1]
     max_sub = min(max(max_subspace_factor * n, n + 1), n_basis)
     # Subspace and its image under H live in preallocated row buffers: no
-    # concatenation per step. Rows [0, m) are in use.
+    # concatenation per step. Rows [0, m) are in use; new directions are built
+    # in place in the rows after them.
     v = np.empty((max_sub + n, n_basis), dtype=complex)
     hv = np.empty_like(v)
     m = n
     v[:n] = v0
-    hv[:n] = _checked(apply_h(v0))
+    hv[:n] = apply_h(v[:n])
     n_apply = n
-    h_sub = clock(np.matmul, v[:n].conj(), hv[:n].T)
+    h_sub = clock(_overlap, v[:n], hv[:n])
+    _check_finite(h_sub)
     iterations = 0
     while True:
         h_sub = 0.5 * (h_sub + h_sub.conj().T)
@@ -155,8 +193,8 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
         hx = clock(np.matmul, cn, hv[:m])
         theta = w[:n]
         residuals = hx - theta[:, None] * x
-        norms = np.sqrt(np.einsum("ij,ij->i", residuals.real, residuals.real)
-                        + np.einsum("ij,ij->i", residuals.imag, residuals.imag))
+        parts = residuals.view(float)
+        norms = np.sqrt(np.einsum("ij,ij->i", parts, parts))
         if not np.all(np.isfinite(norms)):
             raise FloatingPointError("non-finite residuals in the eigensolver")
         active = np.flatnonzero(norms[:n_conv] > tolerance)
@@ -167,25 +205,30 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
             v[:n], hv[:n] = x, hx           # restart from the current Ritz vectors
             m = n
             h_sub = np.diag(theta).astype(complex)
-        t = precondition(residuals[active], theta[active])
+        k = active.size
+        t = v[m:m + k]
+        t[...] = precondition(residuals[active], theta[active])
         for _ in range(2):          # twice is enough (Kahan-Parlett)
-            t -= clock(np.matmul, clock(np.matmul, t, v[:m].conj().T), v[:m])
-        t = clock(orthonormalize, t)
-        k = t.shape[0]
+            clock(_project_out, v[:m], t)
+        q = clock(_orthonormalize_in_place, t)
+        k = q.shape[0]
         if k == 0:
             break
-        ht = _checked(apply_h(t))
+        if not np.shares_memory(q, t):     # the Loewdin fallback returns new rows
+            v[m:m + k] = q
+        t = v[m:m + k]
+        ht = hv[m:m + k]
+        ht[...] = apply_h(t)
         n_apply += k
-        off = clock(np.matmul, v[:m].conj(), ht.T)
-        tt = clock(np.matmul, t.conj(), ht.T)
+        off = clock(_overlap, v[:m], ht)
+        tt = clock(_overlap, t, ht)
         grown = np.empty((m + k, m + k), dtype=complex)
         grown[:m, :m] = h_sub
         grown[:m, m:] = off
         grown[m:, :m] = off.conj().T
         grown[m:, m:] = tt
+        _check_finite(grown)
         h_sub = grown
-        v[m:m + k] = t
-        hv[m:m + k] = ht
         m += k
     blas = clock.seconds
     return DavidsonResult(theta.copy(), np.ascontiguousarray(x), norms, n_apply, iterations,

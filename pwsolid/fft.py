@@ -14,6 +14,7 @@ exact inverses.
 
 from __future__ import annotations
 
+import math
 import os
 import time
 from dataclasses import dataclass, field
@@ -83,10 +84,11 @@ class FFTGrid:
     n_transforms: int = 0
     _plans: dict = field(default_factory=dict, repr=False)
     _sphere_plans: dict = field(default_factory=dict, repr=False)
+    _shared: list | None = field(default=None, repr=False)
 
     @property
     def size(self) -> int:
-        return int(np.prod(self.shape))
+        return math.prod(self.shape)
 
     # -- planning ----------------------------------------------------------
     def _plan(self, nb: int):
@@ -150,29 +152,48 @@ class FFTGrid:
 
     # -- fused kernels on sphere coefficients ---------------------------------
     def _sphere_buffer(self, nb: int, grid_index: np.ndarray):
-        """Plan for ``nb`` fields whose input buffer is zero off the sphere ``grid_index``.
+        """Buffers and plans for ``nb`` fields on the sphere ``grid_index``.
 
-        The backward transform runs out of place, so its input buffer keeps its
-        zeros between calls; only the entries of the previous sphere are cleared
-        when the sphere (the k-point) changes. This avoids zeroing whole grids.
+        Returns ``(src, dst, bwd, fwd, flat_index)``: ``src`` and ``dst`` are the
+        leading ``nb`` fields of one aligned pair of ``batch`` fields shared by
+        every block size (each size has its own plans on those rows), and
+        ``flat_index`` holds the flat positions of the sphere in the first
+        ``nb`` fields, so scatter and gather are single ``put``/``take`` calls.
+
+        The backward transform runs out of place, so ``src`` keeps its zeros
+        off the sphere between calls; only the entries of the previous sphere
+        are cleared when the sphere (the k-point) changes. This avoids zeroing
+        whole grids.
         """
-        entry = self._sphere_plans.get(nb)
-        if entry is None:
-            src = pyfftw.zeros_aligned((nb, *self.shape), dtype="complex128")
-            dst = pyfftw.empty_aligned((nb, *self.shape), dtype="complex128")
-            bwd = pyfftw.FFTW(src, dst, axes=(1, 2, 3), direction="FFTW_BACKWARD",
+        if self._shared is None:
+            src = pyfftw.zeros_aligned((self.batch, *self.shape), dtype="complex128")
+            dst = pyfftw.empty_aligned((self.batch, *self.shape), dtype="complex128")
+            self._shared = [src, dst, None, None]
+        src, dst, last, flat_index = self._shared
+        plans = self._sphere_plans.get(nb)
+        if plans is None:
+            bwd = pyfftw.FFTW(src[:nb], dst[:nb], axes=(1, 2, 3), direction="FFTW_BACKWARD",
                               flags=("FFTW_MEASURE",), threads=self.threads)
-            fwd = pyfftw.FFTW(dst, dst, axes=(1, 2, 3), direction="FFTW_FORWARD",
+            fwd = pyfftw.FFTW(dst[:nb], dst[:nb], axes=(1, 2, 3), direction="FFTW_FORWARD",
                               flags=("FFTW_MEASURE", "FFTW_DESTROY_INPUT"), threads=self.threads)
             src[...] = 0          # planning with FFTW_MEASURE may scribble on buffers
-            entry = self._sphere_plans[nb] = [src, dst, bwd, fwd, None]
-        src, dst, bwd, fwd, last = entry
+            last = None
+            plans = self._sphere_plans[nb] = (bwd, fwd)
         if last is not grid_index:
-            flat = src.reshape(nb, -1)
             if last is not None:
-                flat[:, last] = 0
-            entry[4] = grid_index
-        return entry
+                src.reshape(self.batch, -1)[:, last] = 0
+            flat_index = (np.arange(self.batch)[:, None] * self.size + grid_index).ravel()
+            self._shared[2:] = [grid_index, flat_index]
+        return src[:nb], dst[:nb], plans[0], plans[1], flat_index[:nb * grid_index.size]
+
+    def prepare_potential(self, potential: np.ndarray) -> np.ndarray:
+        """V(r)/N as complex numbers, the form :meth:`apply_prepared_potential` takes.
+
+        The 1/N of the forward transform is folded into the potential, and a
+        complex factor multiplies a complex field about twice as fast as a
+        real one that numpy must cast on the fly.
+        """
+        return np.multiply(potential, 1.0 / self.size, dtype=complex)
 
     def apply_potential(self, coefficients: np.ndarray, grid_index: np.ndarray,
                         potential: np.ndarray) -> np.ndarray:
@@ -191,27 +212,34 @@ class FFTGrid:
         Notes
         -----
         Scatter, backward transform, multiply and forward transform all happen
-        in planned aligned buffers: no full-grid temporaries.
+        in planned aligned buffers: no full-grid temporaries. Callers that apply
+        one potential many times prepare it once with :meth:`prepare_potential`
+        and call :meth:`apply_prepared_potential`.
         """
+        return self.apply_prepared_potential(coefficients, grid_index,
+                                             self.prepare_potential(potential))
+
+    def apply_prepared_potential(self, coefficients: np.ndarray, grid_index: np.ndarray,
+                                 prepared: np.ndarray) -> np.ndarray:
+        """:meth:`apply_potential` for a potential from :meth:`prepare_potential`."""
         if not _HAVE_PYFFTW:
             grids = self._scatter(coefficients, grid_index)
-            psi = self.to_real(grids) * potential[None]
+            psi = self.to_real(grids) * (prepared * self.size)[None]
             return self.to_reciprocal(psi).reshape(len(coefficients), -1)[:, grid_index]
         nb = coefficients.shape[0]
-        out = np.empty_like(coefficients, dtype=complex)
-        scale = 1.0 / self.size
+        out = np.empty((nb, grid_index.size), dtype=complex)
         for start in range(0, nb, self.batch):
             stop = min(nb, start + self.batch)
-            src, dst, bwd, fwd, _ = self._sphere_buffer(stop - start, grid_index)
-            src.reshape(stop - start, -1)[:, grid_index] = coefficients[start:stop]
+            src, dst, bwd, fwd, flat = self._sphere_buffer(stop - start, grid_index)
+            src.reshape(-1)[flat] = coefficients[start:stop].reshape(-1)
             t0 = time.perf_counter()
             bwd(normalise_idft=False)
             t1 = time.perf_counter()
-            np.multiply(dst, potential, out=dst)
+            np.multiply(dst, prepared, out=dst)
             t2 = time.perf_counter()
             fwd()
             self.seconds += (t1 - t0) + (time.perf_counter() - t2)
-            np.multiply(dst.reshape(stop - start, -1)[:, grid_index], scale, out=out[start:stop])
+            np.take(dst.reshape(-1), flat, out=out[start:stop].reshape(-1))
         self.n_transforms += 2 * nb
         return out
 
@@ -225,13 +253,17 @@ class FFTGrid:
         nb = coefficients.shape[0]
         for start in range(0, nb, self.batch):
             stop = min(nb, start + self.batch)
-            src, dst, bwd, _, _ = self._sphere_buffer(stop - start, grid_index)
-            src.reshape(stop - start, -1)[:, grid_index] = coefficients[start:stop]
+            src, dst, bwd, _, flat = self._sphere_buffer(stop - start, grid_index)
+            src.reshape(-1)[flat] = coefficients[start:stop].reshape(-1)
             t0 = time.perf_counter()
             bwd(normalise_idft=False)
             self.seconds += time.perf_counter() - t0
-            dens = dst.real ** 2 + dst.imag ** 2
-            out += np.tensordot(weights[start:stop], dens, axes=1)
+            # dst is scratch: square its real and imaginary parts in place, then
+            # one matrix-vector product sums the weighted bands
+            parts = dst.reshape(stop - start, -1).view(float)
+            np.square(parts, out=parts)
+            summed = weights[start:stop] @ parts
+            out += (summed[0::2] + summed[1::2]).reshape(out.shape)
         self.n_transforms += nb
 
     def _scatter(self, coefficients, grid_index):

@@ -9,6 +9,7 @@ bands of a block in one batched transform.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -77,11 +78,23 @@ def kinetic_preconditioner(kinetic: np.ndarray):
     kin = np.asarray(kinetic, float)
 
     def apply(residuals: np.ndarray, ritz_values: np.ndarray) -> np.ndarray:
-        ekin = np.einsum("ij,ij,j->i", residuals.conj(), residuals, kin).real
-        ekin /= np.maximum(np.einsum("ij,ij->i", residuals.conj(), residuals).real, 1e-300)
-        x = kin[None, :] / np.maximum(ekin, 1e-3)[:, None]
-        p = 27 + x * (18 + x * (12 + 8 * x))
-        return residuals * (p / (p + 16 * x ** 4))
+        # real arithmetic and in-place polynomial: two (nb, n_pw) float scratch arrays
+        r2 = np.square(residuals.real)
+        r2 += np.square(residuals.imag)
+        ekin = (r2 @ kin) / np.maximum(r2.sum(axis=1), 1e-300)
+        x = np.divide(kin[None, :], np.maximum(ekin, 1e-3)[:, None])
+        p = np.multiply(x, 8.0)
+        p += 12
+        p *= x
+        p += 18
+        p *= x
+        p += 27
+        x4 = np.square(x, out=r2)
+        x4 *= x4
+        x4 *= 16
+        x4 += p
+        p /= x4
+        return residuals * p
 
     return apply
 
@@ -104,9 +117,14 @@ class KPointHamiltonian:
     projectors: np.ndarray | None = None   # (n_proj, n_pw) complex, see pseudo.separable
     coupling: np.ndarray | None = None     # (n_proj, n_proj) float, Ha
 
+    @cached_property
+    def _prepared_potential(self) -> np.ndarray:
+        return self.fft.prepare_potential(self.potential)
+
     def apply(self, block: np.ndarray) -> np.ndarray:
         """H applied to rows of ``block`` (nb, n_pw) -> (nb, n_pw)."""
-        vpsi = self.fft.apply_potential(block, self.basis.grid_index, self.potential)
+        vpsi = self.fft.apply_prepared_potential(block, self.basis.grid_index,
+                                                 self._prepared_potential)
         vpsi += self.basis.kinetic[None, :] * block
         if self.projectors is not None and len(self.projectors):
             # all atoms and bands at once: two BLAS-3 products

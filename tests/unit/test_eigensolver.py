@@ -52,3 +52,21 @@ def test_partial_convergence_and_failures(rng):
     assert np.all(res.residual_norms[:4] <= 1e-9)
     with pytest.raises(FloatingPointError):
         davidson(lambda x: x * np.nan, pre, rng.standard_normal((2, 300)) + 0j)
+
+
+def test_orthonormalize_leaves_its_input_and_drops_dependent_rows(rng):
+    x = rng.standard_normal((4, 40)) + 1j * rng.standard_normal((4, 40))
+    x[3] = x[0] + 2j * x[1]            # Cholesky fails; the symmetric step keeps three rows
+    before = x.copy()
+    q = orthonormalize(x)
+    assert np.array_equal(x, before)
+    assert q.shape == (3, 40) and np.allclose(q.conj() @ q.T, np.eye(3), atol=1e-12)
+
+
+def test_davidson_with_dependent_corrections_and_restarts(rng):
+    # a tiny subspace limit forces restarts; the result must not depend on them
+    h, pre = _toy(rng, n=120)
+    ref, _ = dense_lowest_eigenpairs(h, 4)
+    res = davidson(lambda x: x @ h.T, pre, rng.standard_normal((4, 120)) + 0j, tolerance=1e-9,
+                   max_iterations=400, max_subspace_factor=2)
+    assert res.converged and np.allclose(res.eigenvalues, ref, atol=1e-9)

@@ -51,3 +51,14 @@ def test_preconditioner_is_a_positive_damping(rng):
     ratio = (out / r).real
     assert np.all(ratio > 0) and np.all(ratio <= 1 + 1e-12)
     assert np.all(np.diff(ratio, axis=1) <= 1e-12)   # fast plane waves damped more
+
+
+def test_preconditioner_matches_its_formula(rng):
+    # the in-place real arithmetic against the Teter-Payne-Allan expression written out
+    kin = np.linspace(0, 30, 80)
+    r = rng.standard_normal((4, 80)) + 1j * rng.standard_normal((4, 80))
+    ekin = (np.abs(r) ** 2 @ kin) / np.sum(np.abs(r) ** 2, axis=1)
+    x = kin[None, :] / ekin[:, None]
+    poly = 27 + 18 * x + 12 * x ** 2 + 8 * x ** 3
+    expected = r * poly / (poly + 16 * x ** 4)
+    assert np.allclose(kinetic_preconditioner(kin)(r, np.zeros(4)), expected, rtol=1e-13, atol=0)
