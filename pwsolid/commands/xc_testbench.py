@@ -79,6 +79,9 @@ def _table_lines(report, rs_printed: list[float]) -> list[str]:
             f"{'total':>11} {'total/eV':>10}" + "".join(f" {'vs ' + r:>18}" for r in refs))
     lines = ["  Energies per electron in Ha (total also in eV); correlation minus each "
              "reference in mHa", head]
+    if report.functional.needs_gradients:
+        lines.insert(1, f"  (gradient functional: its uniform-gas limit at zero gradient, "
+                        f"parent {report.functional.lda_parent})")
     for rs in rs_printed:
         i = int(abs(table.rs - rs).argmin())
         for j, zeta in enumerate(table.zeta):

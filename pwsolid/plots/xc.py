@@ -9,7 +9,11 @@
    zeta = 1);
 2. the differences of the functional to each reference and to the Monte Carlo
    points, in mHa;
-3. the spin dependence eps_c(zeta) / eps_c(0) at rs = 1 (solid) and rs = 10 (dashed).
+3. the spin dependence eps_c(zeta) / eps_c(0) at rs = 1 (solid) and rs = 10 (dashed);
+4. only for a functional that depends on the density gradient (whose panels 1-3 show
+   its uniform-gas limit): the exchange enhancement factor F_x against s, and
+   the correlation gradient term as a fraction -H / eps_c of the local correlation
+   against t, at rs = 1 (solid) and 10 (dashed), on a second axis.
 """
 
 from __future__ import annotations
@@ -49,23 +53,31 @@ class UniformGasPlot:
 
     from_result = from_report
 
+    @property
+    def n_panels(self) -> int:
+        """3, or 4 for a functional that depends on the density gradient."""
+        return 3 if getattr(self.report, "gradient", None) is None else 4
+
     def plot(self, ax=None):
-        """Draw the three panels; ``ax`` is a sequence of three axes or None (new figure).
+        """Draw the panels; ``ax`` is a sequence of :attr:`n_panels` axes or None.
 
         Returns the figure.
         """
         plt = _pyplot()
+        count = self.n_panels
         with plt.rc_context(house_style()):
             if ax is None:
-                fig, axes = new_axes(1, 3, figsize=(14.0, 4.4))
+                fig, axes = new_axes(1, count, figsize=(14.0 * count / 3, 4.4))
             else:
                 axes = list(ax)
-                if len(axes) != 3:
-                    raise ValueError("UniformGasPlot.plot needs three axes")
+                if len(axes) != count:
+                    raise ValueError(f"UniformGasPlot.plot needs {count} axes")
                 fig = axes[0].figure
             self._curves(axes[0])
             self._differences(axes[1])
             self._spin(axes[2])
+            if count == 4:
+                self._gradient(axes[3])
             fig.suptitle(f"Uniform electron gas: {self.report.functional.name}",
                          color=_INK, fontweight="bold", fontsize=12)
             fig.tight_layout()
@@ -148,3 +160,23 @@ class UniformGasPlot:
         _legend(ax, ", ".join(f"{style}: rs = {rs:g}" for style, rs in
                               zip(("solid", "dashed", "dotted", "dash-dot"), curves.rs)),
                 loc="lower left")
+
+    def _gradient(self, ax) -> None:
+        gradient = self.report.gradient
+        if gradient.exchange_enhancement is not None:
+            ax.plot(gradient.s, gradient.exchange_enhancement, "-", color=self._colour(0),
+                    lw=2.4, label="exchange F_x(s)")
+        ax.set_xlabel("reduced gradient s (exchange) and t (correlation)")
+        ax.set_ylabel("exchange enhancement F_x")
+        ax.set_title("Gradient dependence", loc="left", fontweight="bold")
+        if gradient.correlation_gradient_term is not None:
+            twin = ax.twinx()
+            inside = gradient.t <= gradient.s.max()
+            for k, rs in enumerate(gradient.rs):
+                fraction = -gradient.correlation_gradient_term[k] / gradient.local_correlation[k]
+                twin.plot(gradient.t[inside], fraction[inside], _LINE_STYLES[(k + 1) % 4],
+                          color=self._colour(1), lw=1.4, label=f"correlation, rs = {rs:g}")
+            twin.set_ylabel("-H / eps_c (1: correlation cancelled)")
+            twin.set_ylim(0.0, 1.05)
+            _legend(twin, "correlation", loc="center right")
+        _legend(ax, "exchange", loc="lower right")

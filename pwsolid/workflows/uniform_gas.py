@@ -9,7 +9,11 @@ runs the exact-condition checks of :mod:`pwsolid.xc.conditions`. Both results ha
 ``as_document()`` for JSON (schema :data:`TESTBENCH_SCHEMA`).
 
 No self-consistent calculation is involved: the uniform gas is fully described by
-its density, so each functional is simply evaluated at ``n = 3 / (4 pi rs^3)``.
+its density, so each functional is simply evaluated at ``n = 3 / (4 pi rs^3)``. A
+functional that depends on the density gradient is tabulated in this uniform-gas
+(zero-gradient) limit; its report adds :class:`GradientDependence`, the exchange
+enhancement factor against the reduced gradient s and the correlation gradient term
+against t, and the gradient conditions of :mod:`pwsolid.xc.conditions`.
 """
 
 from __future__ import annotations
@@ -24,6 +28,7 @@ from ..errors import InputError
 from ..units import HARTREE_EV
 from ..xc import (CEPERLEY_ALDER_1980, ConditionResult, Functional, check_exact_conditions,
                   density_from_radius, functional_parts, get_functional)
+from ..xc.gga import correlation_gradient_squared, reduced_gradient_squared
 
 __all__ = [
     "TESTBENCH_SCHEMA",
@@ -32,6 +37,7 @@ __all__ = [
     "DEFAULT_REFERENCES",
     "UniformGasTable",
     "MonteCarloComparison",
+    "GradientDependence",
     "UniformGasReport",
     "uniform_gas_table",
     "testbench_report",
@@ -53,6 +59,13 @@ _CURVE_RS = np.geomspace(0.1, 100.0, 121)
 _CURVE_ZETA = (0.0, 1.0)
 _ZETA_CURVE_RS = (1.0, 10.0)
 _ZETA_CURVE_ZETA = np.linspace(0.0, 1.0, 41)
+# Gradient dependence of a gradient functional (unpolarised): reduced gradients s of
+# exchange at rs = 2 (F_x does not depend on rs for the spin-scaled forms), and t of
+# correlation at the rs of the spin curves.
+_GRADIENT_S = np.linspace(0.0, 5.0, 101)
+_GRADIENT_T = np.geomspace(1e-2, 1e2, 81)
+_GRADIENT_RS = (1.0, 10.0)
+_EXCHANGE_RS = 2.0
 
 
 def _finite_or_none(values: ArrayLike):
@@ -203,6 +216,72 @@ class MonteCarloComparison:
 
 
 @dataclass(frozen=True)
+class GradientDependence:
+    """How a gradient functional departs from its uniform-gas limit (unpolarised).
+
+    Attributes
+    ----------
+    s : ndarray, float64, (n_s,)
+        Reduced density gradients ``|grad n| / (2 kF n)``.
+    exchange_enhancement : ndarray, float64, (n_s,) or None
+        ``F_x(s) = e_x(n, grad n) / e_x(n, 0)`` at rs = 2 bohr; None without a
+        gradient-dependent exchange part.
+    rs : ndarray, float64, (n_rs,), bohr
+    t : ndarray, float64, (n_t,)
+        Correlation reduced gradients ``|grad n| / (2 phi ks n)``.
+    correlation_gradient_term : ndarray, float64, (n_rs, n_t), Ha, or None
+        ``H = eps_c(n, grad n) - eps_c(n, 0)``; None without a gradient-dependent
+        correlation part.
+    local_correlation : ndarray, float64, (n_rs,), Ha
+        ``eps_c(n, 0)`` at each rs (H -> -eps_c as t -> infinity).
+    """
+
+    s: Array
+    exchange_enhancement: Array | None
+    rs: Array
+    t: Array
+    correlation_gradient_term: Array | None
+    local_correlation: Array | None
+
+    def as_document(self) -> dict:
+        term = self.correlation_gradient_term
+        return {
+            "exchange_at_rs_bohr": _EXCHANGE_RS,
+            "reduced_gradient_s": self.s.tolist(),
+            "exchange_enhancement": None if self.exchange_enhancement is None
+            else _finite_or_none(self.exchange_enhancement),
+            "correlation_rs_bohr": self.rs.tolist(),
+            "correlation_reduced_gradient_t": self.t.tolist(),
+            "correlation_gradient_term_mHa": None if term is None
+            else _finite_or_none(1e3 * term),
+            "local_correlation_mHa": None if self.local_correlation is None
+            else _finite_or_none(1e3 * self.local_correlation),
+            "layout": "correlation_gradient_term_mHa[rs][t]"}
+
+
+def _gradient_dependence(functional: Functional) -> GradientDependence | None:
+    if not functional.needs_gradients:
+        return None
+    parts = functional_parts(functional)
+    enhancement = None
+    if parts.exchange is not None and parts.exchange.needs_gradients:
+        n = np.full(_GRADIENT_S.shape, density_from_radius(_EXCHANGE_RS))
+        sigma = _GRADIENT_S ** 2 / reduced_gradient_squared(n, np.ones_like(n))
+        enhancement = (parts.exchange.evaluate_gradient(n, sigma)[0]
+                       / parts.exchange.evaluate_gradient(n, np.zeros_like(n))[0])
+    term = local = None
+    if parts.correlation is not None and parts.correlation.needs_gradients:
+        rs, t = np.meshgrid(_GRADIENT_RS, _GRADIENT_T, indexing="ij")
+        n = density_from_radius(rs)
+        sigma = t ** 2 / correlation_gradient_squared(n, np.zeros_like(n), np.ones_like(n))
+        local_2d = parts.correlation.evaluate_gradient(n, np.zeros_like(n))[0] / n
+        term = parts.correlation.evaluate_gradient(n, sigma)[0] / n - local_2d
+        local = local_2d[:, 0]
+    return GradientDependence(_GRADIENT_S, enhancement, np.array(_GRADIENT_RS), _GRADIENT_T,
+                              term, local)
+
+
+@dataclass(frozen=True)
 class UniformGasReport:
     """One functional on the uniform-gas testbench.
 
@@ -220,6 +299,9 @@ class UniformGasReport:
     curves, zeta_curves : UniformGasTable
         Dense tables for plots: rs from 0.1 to 100 at zeta 0 and 1; zeta from 0 to 1
         at rs 1 and 10.
+    gradient : GradientDependence or None
+        For a functional that needs gradients (the tables are its zero-gradient
+        limit); None for a local functional.
     """
 
     functional: Functional
@@ -230,6 +312,7 @@ class UniformGasReport:
     conditions: tuple[ConditionResult, ...] = field(repr=False)
     curves: UniformGasTable = field(repr=False)
     zeta_curves: UniformGasTable = field(repr=False)
+    gradient: GradientDependence | None = field(default=None, repr=False)
 
     @property
     def failed_conditions(self) -> tuple[str, ...]:
@@ -252,11 +335,13 @@ class UniformGasReport:
     def as_document(self) -> dict:
         """The report as plain data (JSON-ready; dense plot curves left out)."""
         f = self.functional
-        return {
+        document = {
             "schema": TESTBENCH_SCHEMA,
             "functional": {"name": f.name, "description": f.description,
                            "origin": f.origin,
-                           "spin_polarized": f.has_spin_polarized_form},
+                           "spin_polarized": f.has_spin_polarized_form,
+                           "needs_gradients": f.needs_gradients,
+                           "lda_parent": f.lda_parent},
             "references": list(self.references),
             "table": self.table.as_document(),
             "correlation_differences_mHa": {
@@ -269,6 +354,10 @@ class UniformGasReport:
             "exact_conditions": [c.as_dict() for c in self.conditions],
             "failed_conditions": list(self.failed_conditions),
         }
+        if self.gradient is not None:
+            document["table"]["gradient"] = "zero (uniform-gas limit)"
+            document["gradient_dependence"] = self.gradient.as_document()
+        return document
 
 
 def _monte_carlo(functional: Functional) -> tuple[MonteCarloComparison, ...]:
@@ -324,7 +413,8 @@ def testbench_report(functional: str | Functional,
         monte_carlo=_monte_carlo(subject),
         conditions=tuple(check_exact_conditions(subject)),
         curves=uniform_gas_table(everything, _CURVE_RS, _CURVE_ZETA),
-        zeta_curves=uniform_gas_table(everything, _ZETA_CURVE_RS, _ZETA_CURVE_ZETA))
+        zeta_curves=uniform_gas_table(everything, _ZETA_CURVE_RS, _ZETA_CURVE_ZETA),
+        gradient=_gradient_dependence(subject))
 
 
 # Its name starts with "test": keep test collectors from taking it for a test.

@@ -177,3 +177,41 @@ def test_uniform_density_gives_the_local_potential():
     pbe = exchange_correlation_on_grid(get_functional("pbe"), spins, fft, g)
     lda = exchange_correlation_on_grid(get_functional("lda-pw92"), spins, fft, g)
     np.testing.assert_allclose(pbe.potential, lda.potential, rtol=1e-13)
+
+
+def test_testbench_report_of_a_gradient_functional():
+    from pwsolid.workflows.uniform_gas import testbench_report
+
+    report = testbench_report("pbe", rs_values=(1.0, 5.0), zeta_values=(0.0, 1.0))
+    doc = report.as_document()
+    assert doc["functional"]["needs_gradients"] and doc["functional"]["lda_parent"] == "lda-pw92"
+    assert doc["table"]["gradient"].startswith("zero")
+    gradient = report.gradient
+    # F_x(0) = 1 and F_x grows with s towards 1 + kappa (PBE 1996, Eq. 14)
+    assert gradient.exchange_enhancement[0] == 1.0
+    assert np.all(np.diff(gradient.exchange_enhancement) > 0)
+    assert gradient.exchange_enhancement[-1] < 1.804
+    # -H/eps_c climbs from 0 towards 1 (correlation cancelled) with t
+    fraction = -gradient.correlation_gradient_term / gradient.local_correlation[:, None]
+    assert np.all(fraction > 0) and np.all(fraction < 1) and fraction[:, -1].min() > 0.99
+    assert "gradient_dependence" in doc
+    assert testbench_report("lda-pw92", rs_values=(1.0,)).gradient is None
+
+
+def test_testbench_plot_has_a_gradient_panel():
+    import matplotlib.pyplot as plt
+
+    from pwsolid.plots import new_axes
+    from pwsolid.plots.xc import UniformGasPlot
+    from pwsolid.workflows.uniform_gas import testbench_report
+
+    plot = UniformGasPlot.from_report(testbench_report("pbe", ["lda-pw92"]))
+    assert plot.n_panels == 4
+    fig, axes = new_axes(1, 4)
+    try:
+        assert plot.plot(axes) is fig
+        assert axes[3].get_lines()   # F_x(s) drawn
+        with pytest.raises(ValueError):
+            plot.plot(axes[:3])
+    finally:
+        plt.close(fig)
