@@ -14,7 +14,10 @@ a :class:`SerialCommunicator`, whose reductions are the identity, so the same
 code runs serially without mpi4py. Two levels of distribution exist:
 
 * inside one ground state, the irreducible k-points are spread over the
-  processes (:func:`distribute`, used by :func:`pwsolid.scf.prepare`);
+  processes (:func:`distribute`, used by :func:`pwsolid.scf.prepare`); when
+  there are more processes than k-points, the idle ones share the Hamiltonian
+  applications of an owner's k-point, a slice of the bands each
+  (:func:`band_group`);
 * in a workflow of independent calculations (the volumes of an equation of
   state, the settings of a convergence study), whole calculations are spread
   over the processes with :func:`map_over_ranks`; each runs inside
@@ -40,7 +43,7 @@ from .fft import default_threads
 
 __all__ = ["fft_threads_for", "single_threaded_blas", "SerialCommunicator", "MPICommunicator",
            "world", "distribute", "split_evenly", "serial_section", "map_over_ranks",
-           "processes_on_this_node"]
+           "processes_on_this_node", "band_group", "apply_across", "serve_rows", "release"]
 
 #: Grids with fewer points than this run their FFTs on one thread.
 _THREADED_FFT_POINTS = 48 ** 3
@@ -114,6 +117,14 @@ class SerialCommunicator:
         """A sub-communicator of the processes with the same ``color``: this one."""
         return self
 
+    def bcast_array(self, array, root: int = 0):
+        """Overwrite ``array`` on every process with the root's (in place); returns it."""
+        return array
+
+    def gather_rows(self, rows, n_rows: int, root: int = 0):
+        """Stack every process's rows (split as :func:`split_evenly`) on ``root``."""
+        return rows
+
     def barrier(self) -> None:
         pass
 
@@ -122,6 +133,12 @@ def _sum_op():
     from mpi4py import MPI
 
     return MPI.SUM
+
+
+def _mpi_type(dtype):
+    from mpi4py import MPI
+
+    return MPI._typedict[dtype.char]
 
 
 class MPICommunicator:
@@ -162,6 +179,33 @@ class MPICommunicator:
     def split(self, color: int, key: int = 0) -> "MPICommunicator":
         """Sub-communicator of the processes that pass the same ``color``, ordered by ``key``."""
         return MPICommunicator(self._comm.Split(int(color), int(key)))
+
+    def bcast_array(self, array, root: int = 0):
+        """Overwrite the contiguous numpy ``array`` on every process with the root's; returns it.
+
+        The buffer travels as it is (no pickling); every process passes an
+        array of the same shape and dtype.
+        """
+        self._comm.Bcast(array, root=root)
+        return array
+
+    def gather_rows(self, rows, n_rows: int, root: int = 0):
+        """Stack the row blocks of every process on ``root`` (None elsewhere).
+
+        Process ``r`` passes the rows ``split_evenly(n_rows, size, r)`` of a
+        C-contiguous 2-D array; the root receives the whole (n_rows, n_cols)
+        array in one ``Gatherv``, the buffers as they are.
+        """
+        import numpy as np
+
+        rows = np.ascontiguousarray(rows)
+        n_cols = rows.shape[1]
+        counts = [len(split_evenly(n_rows, self.size, r)) * n_cols for r in range(self.size)]
+        displacements = [sum(counts[:r]) for r in range(self.size)]
+        out = np.empty((n_rows, n_cols), dtype=rows.dtype) if self.rank == root else None
+        self._comm.Gatherv(rows, [out, counts, displacements, _mpi_type(rows.dtype)]
+                           if self.rank == root else None, root=root)
+        return out
 
     def barrier(self) -> None:
         self._comm.Barrier()
@@ -218,6 +262,89 @@ def split_evenly(n_items: int, size: int, rank: int) -> range:
     base, extra = divmod(int(n_items), size)
     start = rank * base + min(rank, extra)
     return range(start, start + base + (1 if rank < extra else 0))
+
+
+# ------------------------------------------------------- rows of one k-point's block
+
+def band_group(comm, owned):
+    """The processes that share the Hamiltonian applications of this process's k-points.
+
+    When there are more processes than channels (a Gamma-only supercell on two
+    processes), :func:`distribute` leaves some processes without a k-point.
+    Each such idle process joins the group of one owner (round robin over the
+    owners); in the group (a sub-communicator) the owner is rank 0 and runs
+    the eigensolver, and every member applies H to a slice of the rows of each
+    block (:func:`apply_across`, :func:`serve_rows`). With no idle process
+    every group is a single process and nothing changes.
+
+    Collective over ``comm``; the groups are made once per assignment and kept
+    on the communicator.
+    """
+    if comm.size == 1:
+        return SerialCommunicator()
+    everyone = tuple(tuple(int(j) for j in part) for part in comm.allgather(tuple(owned)))
+    kept = comm.__dict__.setdefault("_band_groups", {})
+    if everyone not in kept:
+        owners = [r for r, part in enumerate(everyone) if part]
+        idle = [r for r, part in enumerate(everyone) if not part]
+        leader = {r: r for r in owners}
+        for i, r in enumerate(idle):
+            leader[r] = owners[i % len(owners)] if owners else r
+        me = comm.rank
+        group = comm.split(leader[me], 0 if me in owners else me + 1)
+        kept[everyone] = group if group.size > 1 else SerialCommunicator()
+    return kept[everyone]
+
+
+def _apply_my_rows(group, apply: Callable, block):
+    rows = split_evenly(len(block), group.size, group.rank)
+    mine = apply(block[rows.start:rows.stop])
+    return group.gather_rows(mine, len(block))
+
+
+def apply_across(group, key, apply: Callable) -> Callable:
+    """On rank 0 of a :func:`band_group`: ``apply`` with the rows of each block spread.
+
+    The returned function sends the block and ``key`` (which tells the other
+    members which operator to use, see :func:`serve_rows`) to the group, applies
+    ``apply`` to its own first rows, and gathers the other rows' results, so it
+    returns what ``apply(block)`` returns, up to rounding. A group of one
+    process gets ``apply`` itself.
+    """
+    if group.size == 1:
+        return apply
+    import numpy as np
+
+    def spread(block):
+        block = np.ascontiguousarray(block, dtype=complex)
+        group.bcast((key, block.shape))
+        group.bcast_array(block)
+        return _apply_my_rows(group, apply, block)
+
+    return spread
+
+
+def serve_rows(group, operator_for: Callable) -> None:
+    """On the other members of a :func:`band_group`: apply to rows until rank 0 releases.
+
+    ``operator_for(key)`` returns the function to apply for a ``key`` sent by
+    :func:`apply_across`.
+    """
+    import numpy as np
+
+    while True:
+        message = group.bcast(None)
+        if message is None:
+            return
+        key, shape = message
+        block = group.bcast_array(np.empty(shape, dtype=complex))
+        _apply_my_rows(group, operator_for(key), block)
+
+
+def release(group) -> None:
+    """On rank 0 of a :func:`band_group`: end the other members' :func:`serve_rows`."""
+    if group.size > 1:
+        group.bcast(None)
 
 
 class _RemoteFailure:

@@ -241,14 +241,18 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
     ndarray (n_k, n_bands)
         Eigenvalues in Ha. Each k-point starts from a dense diagonalisation in
         its slowest plane waves, then Davidson converges it to ``tolerance``.
+        Under MPI the k-points are spread over the processes of ``setup.comm``
+        (contiguous blocks); every process returns all of them.
     """
+    from .parallel import map_over_ranks
+
+    s = setup.settings
+    k_list = np.atleast_2d(np.asarray(kpoints_fractional, float))
     with single_threaded_blas():
         v_eff = _effective_potential(setup, np.asarray(density, float))
         v_eff_g = setup.fft.field_to_reciprocal(v_eff)
-        k_list = np.atleast_2d(np.asarray(kpoints_fractional, float))
-        out = np.empty((len(k_list), n_bands))
-        s = setup.settings
-        for ik, k in enumerate(k_list):
+
+        def solve(k):
             basis = make_basis(setup.crystal.lattice, k, s.cutoff, setup.grid_shape)
             if basis.size < n_bands:
                 raise InputError(f"{n_bands} bands need more plane waves than the {basis.size} "
@@ -256,12 +260,20 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
             proj, coupling = _nonlocal(setup.crystal, setup.pseudopotentials, basis)
             guess = _initial_guess(basis, v_eff_g, n_bands, setup.grid_shape, proj, coupling)
             ham = KPointHamiltonian(basis, setup.fft, v_eff, proj, coupling)
-            res = davidson(ham.apply, kinetic_preconditioner(basis.kinetic), guess,
-                           tolerance=tolerance, max_iterations=200)
-            out[ik] = res.eigenvalues
+            return davidson(ham.apply, kinetic_preconditioner(basis.kinetic), guess,
+                            tolerance=tolerance, max_iterations=200).eigenvalues
+
+        done = []
+
+        def report(index, result, computed_here):
+            done.append(index)
             if progress is not None:
-                progress(ik + 1, len(k_list))
-    return out
+                progress(len(done), len(k_list))
+
+        # the k-points are independent: each process solves a contiguous block of
+        # them and every process ends with all eigenvalues
+        eigenvalues = map_over_ranks(solve, list(k_list), setup.comm, on_result=report)
+    return np.array(eigenvalues, dtype=float).reshape(len(k_list), n_bands)
 
 
 def _effective_potential(setup: SystemSetup, density: np.ndarray):
@@ -432,22 +444,41 @@ def _solve_bands(setup: SystemSetup, state: SCFState, v_eff: np.ndarray, tol: fl
                  max_iterations: int, n_converge: int) -> tuple[np.ndarray, int]:
     """Davidson at every owned k-point, warm-started from ``state.wavefunctions``;
     the lowest ``n_converge`` bands must meet ``tol``."""
+    from .parallel import apply_across, band_group, release, serve_rows
+
     nb = setup.n_bands
-    eigs = np.zeros((len(setup.bases), nb))
     applications = 0
     eigs = np.zeros((setup.n_channels, nb))
-    for j in setup.owned:
-        spin, ik = setup.channel(j)
-        basis = setup.bases[ik]
-        ham = KPointHamiltonian(basis, setup.fft, _channel_potential(v_eff, spin),
-                                *setup.nonlocal_ops[ik])
-        result = davidson(ham.apply, kinetic_preconditioner(basis.kinetic),
-                          state.wavefunctions[j], tolerance=tol, max_iterations=max_iterations,
-                          n_converge=n_converge)
-        state.wavefunctions[j] = result.vectors
-        eigs[j] = result.eigenvalues
-        applications += result.n_applications
-        state.blas_seconds += result.seconds_blas
+    hamiltonians: dict = {}
+
+    def hamiltonian(j: int) -> KPointHamiltonian:
+        if j not in hamiltonians:       # keep one: each holds a potential on the grid
+            hamiltonians.clear()
+            spin, ik = setup.channel(j)
+            hamiltonians[j] = KPointHamiltonian(setup.bases[ik], setup.fft,
+                                                _channel_potential(v_eff, spin),
+                                                *setup.nonlocal_ops[ik])
+        return hamiltonians[j]
+
+    # processes without a k-point apply H to slices of an owner's blocks (more
+    # processes than k-points, e.g. a Gamma-only supercell); see parallel.band_group
+    group = band_group(setup.comm, setup.owned)
+    if not setup.owned:
+        serve_rows(group, lambda j: hamiltonian(j).apply)
+    try:
+        for j in setup.owned:
+            ham = hamiltonian(j)
+            result = davidson(apply_across(group, j, ham.apply),
+                              kinetic_preconditioner(ham.basis.kinetic), state.wavefunctions[j],
+                              tolerance=tol, max_iterations=max_iterations,
+                              n_converge=n_converge)
+            state.wavefunctions[j] = result.vectors
+            eigs[j] = result.eigenvalues
+            applications += result.n_applications
+            state.blas_seconds += result.seconds_blas
+    finally:
+        if setup.owned:
+            release(group)
     return setup.comm.allreduce_sum(eigs), setup.comm.allreduce_sum(applications)
 
 

@@ -38,6 +38,43 @@ def ground_state(pseudopotential: str) -> dict:
             "energies_on_every_process": energies}
 
 
+def gamma_supercell() -> dict:
+    """The cubic 8-atom silicon cell at Gamma: one k-point, so a second process
+    shares the bands of the first (pwsolid.parallel.band_group)."""
+    comm = world()
+    a = pwsolid.angstrom(5.431)
+    cell = pwsolid.Crystal(a * np.eye(3), ("Si",) * 8,
+                           [[0, 0, 0], [0, .5, .5], [.5, 0, .5], [.5, .5, 0],
+                            [.25, .25, .25], [.25, .75, .75], [.75, .25, .75], [.75, .75, .25]])
+    settings = pwsolid.GroundStateSettings(
+        pseudopotentials={"Si": "Si-goedecker-teter-hutter.toml"}, cutoff=5.0,
+        kpoint_mesh=(1, 1, 1), kpoint_shift=(0, 0, 0), energy_tolerance=1e-10,
+        density_tolerance=1e-7)
+    gs = pwsolid.ground_state(cell, settings)
+    return {"processes": comm.size, "total_energy_Ha": gs.total_energy,
+            "iterations": gs.iterations, "eigenvalues_Ha": np.asarray(gs.eigenvalues).tolist(),
+            "owned_kpoints": comm.allgather(list(gs.setup.owned)),
+            "transforms_per_process": comm.allgather(gs.setup.fft.n_transforms),
+            "energies_on_every_process": comm.allgather(gs.total_energy)}
+
+
+def band_path() -> dict:
+    """Eigenvalues along a few k-points for a fixed density (spread over the processes)."""
+    from pwsolid.scf import bands_at_kpoints, prepare
+
+    comm = world()
+    si = pwsolid.diamond(pwsolid.angstrom(5.431), "Si")
+    settings = pwsolid.GroundStateSettings(pseudopotentials={"Si": "Si-appelbaum-hamann.toml"},
+                                           **SILICON)
+    gs = pwsolid.ground_state(si, settings)
+    ks = [[0, 0, 0], [0.1, 0, 0.1], [0.25, 0, 0.25], [0.5, 0, 0.5], [0.5, 0.25, 0.75]]
+    calls = []
+    bands = bands_at_kpoints(prepare(si, settings), gs.density, ks, 8,
+                             progress=lambda done, total: calls.append((done, total)))
+    return {"processes": comm.size, "bands_Ha": bands.tolist(),
+            "bands_on_every_process": comm.allgather(bands.tolist()), "progress": calls}
+
+
 def volume_scan() -> dict:
     from pwsolid.workflows.equation_of_state import scan_volumes
 
@@ -58,7 +95,9 @@ def volume_scan() -> dict:
 
 if __name__ == "__main__":
     what, out = sys.argv[1], sys.argv[2]
-    result = volume_scan() if what == "volume-scan" else ground_state(what)
+    programs = {"volume-scan": volume_scan, "gamma-supercell": gamma_supercell,
+                "band-path": band_path}
+    result = programs[what]() if what in programs else ground_state(what)
     if world().rank == 0:
         with open(out, "w") as fh:
             json.dump(result, fh)

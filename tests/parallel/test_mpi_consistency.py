@@ -119,3 +119,27 @@ def test_command_line_under_mpiexec_prints_and_writes_once(tmp_path):
     assert serial.returncode == 0, serial.stdout + serial.stderr
     ref = json.loads((tmp_path / "serial.json").read_text())
     assert abs(doc["energy"]["total_Ha"] - ref["energy"]["total_Ha"]) < 1e-10
+
+
+def test_gamma_supercell_shares_the_bands_of_its_one_kpoint(tmp_path):
+    serial = _run(["gamma-supercell"], tmp_path, name="serial.json")
+    two = _run(["gamma-supercell"], tmp_path, processes=2, name="two.json")
+    # one k-point: process 0 owns it, process 1 owns none but does transforms
+    assert two["owned_kpoints"] == [[0], []]
+    assert two["transforms_per_process"][1] > 0
+    assert sum(two["transforms_per_process"]) >= serial["transforms_per_process"][0]
+    assert len(set(two["energies_on_every_process"])) == 1
+    # the rows of each H block are computed in other FFT batches: rounding only,
+    # far below the 1e-10 Ha of the SCF tolerance
+    assert abs(two["total_energy_Ha"] - serial["total_energy_Ha"]) < 1e-10
+    np.testing.assert_allclose(two["eigenvalues_Ha"], serial["eigenvalues_Ha"], atol=1e-7, rtol=0)
+
+
+def test_band_structure_kpoints_are_spread_and_gathered(tmp_path):
+    serial = _run(["band-path"], tmp_path, name="serial.json")
+    two = _run(["band-path"], tmp_path, processes=2, name="two.json")
+    assert two["bands_on_every_process"][0] == two["bands_on_every_process"][1]
+    # the same eigensolver per k-point on densities that agree to the SCF
+    # tolerance (1e-7): eigenvalues to well below the 1e-6 residual norm
+    np.testing.assert_allclose(two["bands_Ha"], serial["bands_Ha"], atol=1e-8, rtol=0)
+    assert two["progress"] == serial["progress"] == [[i, 5] for i in range(1, 6)]

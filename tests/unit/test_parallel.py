@@ -381,3 +381,49 @@ def test_convergence_study_on_two_processes_matches_the_serial_study():
         assert study.recommended_cutoff == serial.recommended_cutoff
         assert study.recommended_mesh == serial.recommended_mesh
         assert study.messages == serial.messages
+
+
+class _RowCommunicator(_FakeCommunicator):
+    """The fake communicator with the buffer calls of the band groups."""
+
+    def bcast_array(self, array, root=0):
+        array[...] = self.bcast(np.array(array), root)
+        return array
+
+    def gather_rows(self, rows, n_rows, root=0):
+        parts = self.gather(np.array(rows), root)
+        return None if parts is None else np.concatenate(parts)
+
+
+def test_rows_of_each_block_are_shared_by_a_band_group():
+    # rank 0 runs the "eigensolver" (three blocks, one with fewer rows than
+    # processes); the others serve until released; rows are split in order
+    operators = {"a": lambda x: 2.0 * x, "b": lambda x: x + 1j}
+    blocks = [("a", np.arange(12.0).reshape(6, 2)), ("b", np.ones((1, 2))),
+              ("a", np.arange(10.0).reshape(5, 2))]
+
+    def body(comm):
+        seen = []
+
+        def operator_for(key):
+            return lambda x: (seen.append(len(x)), operators[key](x))[1]
+
+        if comm.rank == 0:
+            out = [parallel.apply_across(comm, key, operator_for(key))(block)
+                   for key, block in blocks]
+            parallel.release(comm)
+        else:
+            out = parallel.serve_rows(comm, operator_for)
+        return out, seen
+
+    results = _Group(3).run(_RowCommunicator, body)
+    for (key, block), got in zip(blocks, results[0][0]):
+        np.testing.assert_array_equal(got, operators[key](block.astype(complex)))
+    assert [r[1] for r in results] == [[2, 1, 2], [2, 0, 2], [2, 0, 1]]
+
+
+def test_band_groups_are_single_processes_serially():
+    group = parallel.band_group(SerialCommunicator(), (0, 1))
+    apply = lambda x: x  # noqa: E731
+    assert group.size == 1 and parallel.apply_across(group, 0, apply) is apply
+    parallel.release(group)
