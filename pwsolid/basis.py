@@ -21,6 +21,7 @@ __all__ = [
     "grid_miller_indices",
     "grid_g_vectors",
     "density_sphere",
+    "transfer_coefficients",
 ]
 
 
@@ -127,3 +128,48 @@ def density_sphere(lattice: np.ndarray, cutoff: float, grid_shape) -> np.ndarray
     gd = 2.0 * np.sqrt(2.0 * cutoff)
     inside = np.einsum("ij,ij->i", g, g) <= gd * gd * (1 + 1e-10)
     return m[inside]
+
+
+def transfer_coefficients(old_miller: np.ndarray, coefficients: np.ndarray,
+                          new_basis: PlaneWaveSet) -> np.ndarray:
+    """Carry plane-wave coefficients to another basis by Miller index.
+
+    Parameters
+    ----------
+    old_miller : ndarray (n_old, 3) int
+        Miller indices of the old basis (same k-point in fractional coordinates).
+    coefficients : ndarray (n_bands, n_old) complex
+        Coefficient rows on the old basis.
+    new_basis : PlaneWaveSet
+        The basis to carry them to.
+
+    Returns
+    -------
+    ndarray (n_bands, n_new) complex
+        Coefficients at the Miller indices both bases share; zero elsewhere.
+
+    Notes
+    -----
+    Under a homogeneous deformation of the cell a Bloch function keeps its
+    fractional-coordinate shape, so the same Miller indices describe it; only the
+    cutoff sphere (in Cartesian G) gains or loses its outermost shell. The rows are
+    not re-orthonormalised here: the eigensolver does that with its start vectors.
+    """
+    old_miller = np.asarray(old_miller, int)
+    new_miller = new_basis.miller
+    span = int(max(np.abs(old_miller).max(initial=0), np.abs(new_miller).max(initial=0))) + 1
+    width = 2 * span + 1
+
+    def keys(m):
+        s = m + span
+        return (s[:, 0] * width + s[:, 1]) * width + s[:, 2]
+
+    old_keys = keys(old_miller)
+    order = np.argsort(old_keys)
+    new_keys = keys(new_miller)
+    pos = np.searchsorted(old_keys[order], new_keys)
+    pos = np.minimum(pos, len(order) - 1)
+    found = old_keys[order][pos] == new_keys
+    out = np.zeros((coefficients.shape[0], new_basis.size), dtype=complex)
+    out[:, found] = coefficients[:, order[pos[found]]]
+    return out

@@ -24,11 +24,13 @@ from typing import Any
 
 import numpy as np
 
+from .basis import fft_grid_for_cutoff
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
 from .resources import pseudopotential_dir
 from .settings import SETTING_KEYS, GroundStateSettings
-from .units import parse_quantity
+from .symmetry import reduced_lattice
+from .units import BOHR_ANGSTROM, parse_quantity
 
 __all__ = ["RunInput", "KeyInfo", "load_input", "parse_input", "schema_table", "schema_text"]
 
@@ -318,7 +320,34 @@ def parse_input(document: Mapping, *, source: str | None = None,
     if base_dir is None:
         base_dir = Path(source).absolute().parent if source else Path.cwd()
     reader = _Reader(source, Path(base_dir).absolute())
-    return reader.run(document, stem=Path(source).stem if source else "pwsolid")
+    run = reader.run(document, stem=Path(source).stem if source else "pwsolid")
+    _check_cell_shape(run, source)
+    return run
+
+
+#: A cell whose FFT grid is this many times larger than that of its reduced
+#: equivalent is refused: the extra grid points cost time and memory for nothing.
+SKEWED_GRID_FACTOR = 2.0
+
+
+def _check_cell_shape(run: RunInput, source: str | None) -> None:
+    """Refuse a cell so skewed that its FFT grid is far larger than an equivalent cell's."""
+    s, lattice = run.settings, run.crystal.lattice
+    if s.fft_grid is not None:
+        return
+    grid = fft_grid_for_cutoff(lattice, s.cutoff)
+    reduced = reduced_lattice(lattice)
+    better = fft_grid_for_cutoff(reduced, s.cutoff)
+    if np.prod(grid) > SKEWED_GRID_FACTOR * np.prod(better):
+        rows = "; ".join("[" + ", ".join(f"{x * BOHR_ANGSTROM:.6f}" for x in r) + "]"
+                         for r in reduced)
+        raise InputError(
+            f"the cell is too skewed for the FFT grid: its vectors need a "
+            f"{'x'.join(map(str, grid))} grid, an equivalent reduced cell only "
+            f"{'x'.join(map(str, better))}; give the reduced lattice vectors (angstrom) "
+            f"{rows} and the atoms in fractional coordinates of that cell",
+            key="crystal.lattice_vectors", value=np.round(lattice * BOHR_ANGSTROM, 6).tolist(),
+            source=source)
 
 
 def _suggest(word: str, candidates) -> str | None:

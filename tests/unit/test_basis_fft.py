@@ -98,3 +98,23 @@ def test_fused_kernels_with_shared_buffers_match_plain_transforms(silicon, rng):
         fft.accumulate_density(c, basis.grid_index, w, dens)
         assert np.allclose(dens, 1 + np.einsum("b,bxyz->xyz", w, np.abs(psi) ** 2),
                            rtol=1e-13, atol=0)
+
+
+def test_coefficients_carried_by_miller_index_between_cells_and_cutoffs():
+    """Same Miller index, same coefficient; plane waves only one basis has get zero."""
+    from pwsolid.basis import make_basis, transfer_coefficients
+    from pwsolid.crystal import diamond
+
+    rng = np.random.default_rng(3)
+    si = diamond(10.2, "Si")
+    small = make_basis(si.lattice, (0.25, 0.0, 0.5), 4.0, (18, 18, 18))
+    large = make_basis(si.scaled(0.97).lattice, (0.25, 0.0, 0.5), 6.0, (18, 18, 18))
+    c = rng.standard_normal((3, small.size)) + 1j * rng.standard_normal((3, small.size))
+    up = transfer_coefficients(small.miller, c, large)
+    back = transfer_coefficients(large.miller, up, small)
+    assert np.array_equal(back, c)                       # every small-basis wave is in the large one
+    where = {tuple(m): i for i, m in enumerate(small.miller)}
+    for j, m in enumerate(large.miller):
+        i = where.get(tuple(m))
+        assert np.array_equal(up[:, j], c[:, i] if i is not None else np.zeros(3))
+    assert transfer_coefficients(small.miller, c, small).tolist() == c.tolist()

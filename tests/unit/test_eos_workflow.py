@@ -21,7 +21,8 @@ from pwsolid.eos import birch_murnaghan_energy
 from pwsolid.errors import ConvergenceWarning, InputError
 from pwsolid.settings import GroundStateSettings
 from pwsolid.units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
-from pwsolid.workflows.equation_of_state import (ScanPoint, WarmStart, lattice_lengths,
+from pwsolid.workflows.equation_of_state import (ScanPoint, WarmStart, extrapolate_density,
+                                                 lattice_lengths,
                                                  scan_volumes, transfer_density)
 from pwsolid.workflows.structures import compare_structures
 
@@ -385,3 +386,64 @@ def test_compare_structures_refuses_incomparable_settings():
                            solver=ModelSolver())
     with pytest.raises(InputError, match="at least two"):
         compare_structures({"a": dia}, SETTINGS, solver=ModelSolver())
+
+
+def test_two_neighbours_extrapolate_a_density_linear_in_volume():
+    """A density at fixed fractional points that is linear in V is extrapolated exactly."""
+    shape = (10, 10, 10)
+    x = np.stack(np.meshgrid(*[np.arange(n) / n for n in shape], indexing="ij"))
+    shape_field = np.cos(2 * np.pi * x[0]) * np.sin(2 * np.pi * x[2])
+
+    def electrons_per_cell(volume):          # positive, 8 electrons, shape varying with V
+        rho = 1.0 + (0.2 + 0.001 * (volume - 250.0)) * shape_field
+        return 8.0 * rho / rho.mean()
+
+    def density(volume):
+        return electrons_per_cell(volume) / volume
+
+    older, newer, target = 250.0, 255.0, 262.0
+    start = WarmStart(density(newer), newer, None, WarmStart(density(older), older))
+    out = extrapolate_density(start, shape, target)
+    assert np.allclose(out, density(target), rtol=1e-12, atol=0)
+    # one neighbour only: the transfer of that density, whose error is first order in dV
+    single = extrapolate_density(WarmStart(density(newer), newer), shape, target)
+    assert np.allclose(single, transfer_density(density(newer), newer, shape, target))
+    assert np.abs(single - density(target)).max() > 100 * np.abs(out - density(target)).max()
+    # too far beyond the neighbours: the one-point form, never a wild extrapolation
+    far = extrapolate_density(start, shape, newer + 3 * (newer - older))
+    assert np.allclose(far, transfer_density(density(newer), newer, shape, newer + 15.0))
+
+
+def test_scan_points_start_from_two_neighbours_once_two_are_done():
+    solver = ModelSolver()
+    scan_volumes(diamond(_a_for_volume(V0), "Si"), SETTINGS, solver=solver)
+    assert solver.warm[1].partner is None
+    for w in solver.warm[2:]:
+        assert w.partner is not None and w.partner.volume != w.volume
+
+
+def test_orbitals_of_a_neighbouring_cell_start_the_next_one():
+    """Real SCF, tiny silicon: a start from the previous volume's orbitals and density
+    reaches the cold-start energy (the start changes the path, not the answer)."""
+    from pwsolid.scf import WavefunctionStart, _start_wavefunctions, ground_state, prepare
+
+    si = diamond(5.40 / BOHR_ANGSTROM, "Si")
+    first = ground_state(si, SETTINGS)
+    bigger = si.scaled(1.01)
+    start = WavefunctionStart.of(first)
+    warm = ground_state(bigger, SETTINGS, initial_density=first.density * si.volume / bigger.volume,
+                        initial_wavefunctions=start)
+    cold = ground_state(bigger, SETTINGS)
+    assert warm.converged and cold.converged
+    # both within the SCF energy tolerance (1e-8 Ha) of the same minimum; 1e-6 Ha leaves room.
+    # (Whether it saves iterations is a benchmark question: benchmarks/eos_warm_start.py.)
+    assert warm.total_energy == pytest.approx(cold.total_energy, abs=1e-6)
+    # the first solve starts from the carried orbitals: fewer H applications than the
+    # same start without them (the same first eigensolver tolerance)
+    density_only = ground_state(bigger, SETTINGS,
+                                initial_density=first.density * si.volume / bigger.volume)
+    assert warm.history[0]["hamiltonian_applications_per_band"] < \
+        density_only.history[0]["hamiltonian_applications_per_band"]
+    # other k-points: the start is ignored rather than misused
+    other = prepare(bigger, SETTINGS.replace(kpoint_mesh=(3, 3, 3)))
+    assert _start_wavefunctions(other, start) is None

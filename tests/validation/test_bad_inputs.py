@@ -20,8 +20,18 @@ def proto(name: str, species: str = '["Si"]', a: str = '"5.43 angstrom"', extra:
     return f'[crystal]\nprototype = "{name}"\nlattice_constant = {a}\nspecies = {species}\n{extra}'
 
 
+# The fcc lattice of EXPLICIT written with a2 + 2 a1 and a3 + 2 a2' (a unimodular change
+# of basis, the same lattice): the FFT grid holding the density sphere grows from 25^3
+# to 25x70x150 points at 15 Ha.
+SKEWED = ('[crystal]\nprototype = "explicit"\nlattice_constant = "5.43 angstrom"\n'
+          'lattice_vectors = [[0, 0.5, 0.5], [0.5, 1, 1.5], [1.5, 2.5, 3]]\n' + ATOMS_OK
+          + '[basis]\ncutoff = "15 Ha"\n')
+
 # (case id, TOML text, dotted key named in the message, expected message fragment)
 CASES = [
+    ("cell too skewed for the FFT grid", SKEWED, "crystal.lattice_vectors",
+     "too skewed for the FFT grid: its vectors need a 25x70x150 grid, an equivalent "
+     "reduced cell only 25x25x25"),
     # unknown names, with near-miss suggestions
     ("misspelt key", CRYSTAL + '[basis]\ncutof = "15 Ha"\n', "basis.cutof",
      "did you mean 'basis.cutoff'?"),
