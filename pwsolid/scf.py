@@ -8,6 +8,7 @@ owns the loop, the stopping rules and the log, and returns a :class:`GroundState
 
 from __future__ import annotations
 
+import dataclasses
 import time
 import warnings
 from dataclasses import dataclass, field
@@ -363,6 +364,17 @@ def _initial_guess(basis: PlaneWaveSet, potential_g: np.ndarray, n_bands: int,
     return guess
 
 
+def _with_more_bands(block: np.ndarray, basis: PlaneWaveSet, n_bands: int) -> np.ndarray:
+    """``block`` with extra start rows (random, damped by the kinetic energy like a
+    preconditioned residual); the eigensolver orthonormalises them."""
+    rng = np.random.default_rng(block.shape[0])
+    extra = n_bands - block.shape[0]
+    damp = 1.0 / (1.0 + basis.kinetic)
+    rows = (rng.standard_normal((extra, basis.size))
+            + 1j * rng.standard_normal((extra, basis.size))) * damp
+    return np.vstack([block, rows])
+
+
 def _eigensolver_tolerance(residual: float, iteration: int, warm: bool = False) -> float:
     # Loose while the density is far from self-consistency, tight near the end;
     # the energy error goes as the square of the residual norm. A warm start (the
@@ -384,7 +396,12 @@ def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
     nb = setup.n_bands
     if state.wavefunctions is None:
         state.wavefunctions = [None] * setup.n_channels
-    fresh = any(state.wavefunctions[j] is None for j in setup.owned)
+    fresh = any(state.wavefunctions[j] is None or state.wavefunctions[j].shape[0] != nb
+                for j in setup.owned)
+    for j in setup.owned:
+        w = state.wavefunctions[j]
+        if w is not None and w.shape[0] < nb:      # bands added by a remedy
+            state.wavefunctions[j] = _with_more_bands(w, setup.bases[setup.channel(j)[1]], nb)
     for j in setup.owned:
         if state.wavefunctions[j] is None:
             spin, ik = setup.channel(j)
@@ -691,7 +708,8 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
     When the SCF stalls (the density residual has not halved in six iterations),
     documented remedies are tried in turn before giving up, each recorded in the
     result's messages: (1) halve the mixing weight and double the Pulay history;
-    (2) halve it again and switch the Kerker preconditioner on.
+    (2) halve it again and switch the Kerker preconditioner on; (3) compute more
+    bands (a fifth more, at least four).
 
     Raises
     ------
@@ -734,6 +752,13 @@ def _remedy(setup: SystemSetup, mixer: PulayMixer, step: int):
                          preconditioner=_per_channel(kerker_preconditioner(setup.g2, q0),
                                                      setup.n_spin))
         return new, f"mixing weight {mixer.weight:g} -> {new.weight:g} with Kerker preconditioning"
+    if step == 2:
+        # A band cut at the top of the computed ones (a degenerate partner missing, or
+        # a smearing tail) converges slowly in the eigensolver and keeps the density noisy.
+        n_new = setup.n_bands + max(4, int(np.ceil(0.2 * setup.n_bands)))
+        if n_new > min(b.size for b in setup.bases):
+            return None
+        return mixer, f"bands {setup.n_bands} -> {n_new}", n_new
     return None
 
 
@@ -815,7 +840,9 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
         if _stalled(state.history[stall_base:]):
             fix = _remedy(setup, mixer, remedies)
             if fix is not None:
-                mixer, what = fix
+                mixer, what = fix[:2]
+                if len(fix) > 2:
+                    setup = dataclasses.replace(setup, n_bands=fix[2])
                 remedies += 1
                 stall_base = len(state.history)
                 note = f"SCF stalled at iteration {state.iteration}; remedy {remedies}: {what}"

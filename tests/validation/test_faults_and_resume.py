@@ -93,8 +93,10 @@ def test_a_stalled_scf_tries_remedies_then_says_what_to_change(silicon_small):
         gs = pwsolid.ground_state(silicon_small, s)
     assert not gs.converged
     remedies = [m for m in gs.messages if "remedy" in m]
-    assert len(remedies) == 2
+    assert len(remedies) == 3
     assert "mixing weight 0.6 -> 0.3" in remedies[0] and "Kerker" in remedies[1]
+    assert "bands 8 -> 12" in remedies[2]
+    assert gs.eigenvalues.shape[1] == 12 and gs.setup.n_bands == 12
     assert "self_consistency.max_iterations" in gs.messages[-1]
 
 
