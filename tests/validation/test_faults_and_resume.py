@@ -140,3 +140,55 @@ def test_a_stopped_run_resumes_with_the_same_command(tmp_path, how):
     run = pwsolid.load_input(path)
     reference = pwsolid.ground_state(run.crystal, run.settings).total_energy
     assert abs(resumed - reference) < 1e-8
+
+
+@pytest.mark.slow
+def test_a_killed_volume_scan_resumes_skipping_finished_points(tmp_path):
+    # Kill (SIGKILL) an equation-of-state scan once some of its points are stored, at a
+    # random moment inside a later point; the same command then skips the stored points
+    # and gives the same energy curve as an uninterrupted scan.
+    import random
+
+    path = tmp_path / "scan.toml"
+    path.write_text(INPUT.format(cutoff=10, mesh=2))
+    store = tmp_path / "scan.eos-points.json"
+    cmd = [sys.executable, "-m", "pwsolid.cli", "equation-of-state", str(path), "--quiet",
+           "--points", "5", "--volume-range", "0.05"]
+    env = dict(os.environ, PYTHONWARNINGS="ignore")
+    proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+    wanted = random.Random().randint(1, 3)
+    deadline = time.time() + 300
+
+    def stored():
+        try:
+            return len(json.loads(store.read_text()).get("points", []))
+        except (OSError, ValueError):
+            return 0
+
+    while stored() < wanted and proc.poll() is None and time.time() < deadline:
+        time.sleep(0.01)
+    if proc.poll() is not None:
+        pytest.skip("the scan finished before it could be killed (machine too fast)")
+    time.sleep(random.Random().uniform(0.0, 0.3))
+    proc.send_signal(signal.SIGKILL)
+    proc.communicate(timeout=60)
+    assert proc.returncode == -signal.SIGKILL
+    kept = stored()
+    assert 1 <= kept < 5
+    done = subprocess.run(cmd, capture_output=True, text=True, env=env, timeout=600)
+    assert done.returncode == 0, done.stderr
+    assert f"{kept} from the restart file" in done.stdout
+    resumed = json.loads((tmp_path / "scan.eos.json").read_text())
+    # the uninterrupted scan, in a directory of its own
+    fresh_dir = tmp_path / "fresh"
+    fresh_dir.mkdir()
+    (fresh_dir / "scan.toml").write_text(path.read_text())
+    cmd[4] = str(fresh_dir / "scan.toml")
+    ref = subprocess.run(cmd, capture_output=True, text=True, env=env, timeout=600)
+    assert ref.returncode == 0, ref.stderr
+    reference = json.loads((fresh_dir / "scan.eos.json").read_text())
+    assert "from the restart file" not in ref.stdout
+    # every point converged to 1e-8 Ha, from different starts: the curves agree to 1e-7
+    got, want = resumed["energy_curve"], reference["energy_curve"]
+    assert got["volumes_bohr3"] == pytest.approx(want["volumes_bohr3"], rel=1e-12)
+    assert got["energies_Ha"] == pytest.approx(want["energies_Ha"], abs=1e-7)
