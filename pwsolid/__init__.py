@@ -20,7 +20,7 @@ from .errors import ConvergenceError, ConvergenceWarning, InputError, PwsolidErr
 from .kpoints import KPointSet, irreducible_kpoints, monkhorst_pack
 from .pseudo import Pseudopotential, load_pseudopotential
 from .results import ground_state_document, load_density, save_density, write_json
-from .scf import GroundState, ground_state, prepare
+from .scf import GroundState, WavefunctionStart, ground_state, prepare
 from .settings import GroundStateSettings
 from .symmetry import SymmetryOperations, find_symmetry
 from .units import BOHR_ANGSTROM, HARTREE_EV, parse_quantity
@@ -56,5 +56,5 @@ __all__ = [
     "scan_volumes", "VolumeScan", "converge_settings", "ConvergenceStudy", "compare_structures",
     "StructureComparison", "band_structure", "empirical_band_structure", "BandStructure",
     "density_of_states", "DOSResult", "testbench_report", "uniform_gas_table", "UniformGasReport",
-    "load_user_functional", "check_exact_conditions",
+    "load_user_functional", "check_exact_conditions", "WavefunctionStart",
 ]
