@@ -75,6 +75,8 @@ QUICK_CASES = {
 
 #: The case whose k-points the MPI speed-up is measured on.
 MPI_CASE = "silicon"
+#: A Gamma-only cell (one k-point) whose bands and plane waves two processes share.
+BAND_MPI_CASE = "si16"
 #: Cases of the size-scaling fit (Gamma-only supercells).
 SCALING_CASES = ("si8", "si16", "si32", "si64")
 
@@ -305,6 +307,17 @@ def _mpi_figures(quick: bool, launcher: str) -> dict:
             "speedup_over_capacity": speedup / capacity}
 
 
+def _band_mpi_figures(quick: bool) -> dict:
+    """The Gamma-only case on 1 and 2 processes: the second process has no k-point
+    of its own and shares the plane waves and bands of the first's."""
+    with tempfile.TemporaryDirectory() as tmp:
+        one = _collect(_start(BAND_MPI_CASE, quick, tmp, ranks=1, throughput=False, tag="-1"))
+        two = _collect(_start(BAND_MPI_CASE, quick, tmp, ranks=2, throughput=False, tag="-2"))
+    return {"case": BAND_MPI_CASE, "one_process": one, "two_processes": two,
+            "energy_difference_Ha": abs(one["total_energy_Ha"] - two["total_energy_Ha"]),
+            "speedup": one["scf_wall_seconds"] / two["scf_wall_seconds"]}
+
+
 def mpi_launcher() -> str | None:
     """Path of ``mpiexec`` (beside this Python first, then on PATH) when mpi4py imports too."""
     try:
@@ -439,6 +452,11 @@ def main(argv=None) -> int:
               f"energies differ by {summary['mpi']['energy_difference_Ha']:.1e} Ha", flush=True)
     elif not args.no_mpi:
         summary["mpi_note"] = "mpiexec or mpi4py not found: install the parallel extra"
+    if launcher and BAND_MPI_CASE in names:
+        print(f"running {BAND_MPI_CASE} under {launcher} -n 1 and -n 2 ...", flush=True)
+        summary["band_mpi"] = _band_mpi_figures(args.quick)
+        print(f"  speed-up {summary['band_mpi']['speedup']:.2f}x, energies differ by "
+              f"{summary['band_mpi']['energy_difference_Ha']:.1e} Ha", flush=True)
     targets = evaluate_targets(rows, summary)
     command = "python benchmarks/run_suite.py" + (" --quick" if args.quick else "") + (
         f" --cases {args.cases}" if args.cases else "")
@@ -463,6 +481,13 @@ def main(argv=None) -> int:
                      "what this machine offered two processes.  ")
     elif "mpi_note" in summary:
         lines.append(f"MPI: {summary['mpi_note']}.  ")
+    if "band_mpi" in summary:
+        b = summary["band_mpi"]
+        lines.append(f"MPI, one k-point ({b['case']}, bands and plane waves shared): "
+                     f"{b['one_process']['scf_wall_seconds']:.1f} s on 1 process, "
+                     f"{b['two_processes']['scf_wall_seconds']:.1f} s on 2: speed-up "
+                     f"{b['speedup']:.2f}x; total energies differ by "
+                     f"{b['energy_difference_Ha']:.1e} Ha.  ")
     lines += ["", "Targets (--quick: small cases, not a measurement):" if args.quick
               else "Targets:", *[_fmt_target(t) for t in targets]]
     text = "\n".join(lines) + "\n"

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass
-from typing import Protocol
+from typing import Callable, Protocol
 
 import numpy as np
 from scipy.linalg import eigh
@@ -69,33 +69,53 @@ def _overlap(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     return zgemm(1.0, a.T, b.T, trans_a=2)
 
 
-def _project_out(basis: np.ndarray, block: np.ndarray) -> None:
+class _Clock:
+    """Times the dense linear-algebra calls (BLAS and LAPACK) for the benchmarks."""
+
+    def __init__(self):
+        self.seconds = 0.0
+
+    def __call__(self, fn, *args, **kwargs):
+        t0 = time.perf_counter()
+        out = fn(*args, **kwargs)
+        self.seconds += time.perf_counter() - t0
+        return out
+
+
+def _same(x):
+    return x
+
+
+def _project_out(basis: np.ndarray, block: np.ndarray, clock, total=_same) -> None:
     """block <- block - basis^T (conj(basis) block^T)^T: remove the span of orthonormal rows.
 
     Two BLAS calls; the update runs in place on the rows of ``block`` (C-contiguous).
+    ``total`` sums the overlaps over the processes holding other columns.
     """
-    coef = _overlap(basis, block)
-    out = zgemm(-1.0, basis.T, coef, 1.0, block.T, 0, 0, 1)
+    coef = total(clock(_overlap, basis, block))
+    out = clock(zgemm, -1.0, basis.T, coef, 1.0, block.T, 0, 0, 1)
     if not np.shares_memory(out, block):    # f2py had to copy (non-contiguous block)
         block.T[...] = out
 
 
-def _orthonormalize_in_place(block: np.ndarray) -> np.ndarray:
+def _orthonormalize_in_place(block: np.ndarray, clock=None, total=_same) -> np.ndarray:
     """Orthonormal rows spanning ``block`` (C-contiguous complex), overwriting it when it can.
 
     Cholesky QR: S = U^H U from the Gram matrix (one Hermitian rank-k update),
     then the rows of U^-T B are orthonormal (one triangular solve); both run in
     BLAS and LAPACK on the block in place. When S is not numerically positive
     definite, a symmetric (Loewdin) step keeps the well-conditioned directions.
+    ``total`` sums the Gram matrix over the processes holding other columns.
     """
-    gram = zherk(1.0, block.T, trans=2)            # upper triangle of S
-    upper, info = zpotrf(gram, lower=0, overwrite_a=1)
+    clock = clock or _Clock()
+    gram = total(clock(zherk, 1.0, block.T, trans=2))       # upper triangle of S
+    upper, info = clock(zpotrf, gram, lower=0, overwrite_a=1)
     if info == 0:
-        return ztrsm(1.0, upper, block.T, side=1, lower=0, overwrite_b=1).T
-    s = _overlap(block, block)
-    w, u = np.linalg.eigh(s)
+        return clock(ztrsm, 1.0, upper, block.T, side=1, lower=0, overwrite_b=1).T
+    s = total(clock(_overlap, block, block))
+    w, u = clock(np.linalg.eigh, s)
     keep = w > 1e-12 * max(w.max(), 1e-300)
-    return (u[:, keep] / np.sqrt(w[keep])).T @ block
+    return clock(np.matmul, (u[:, keep] / np.sqrt(w[keep])).T, block)
 
 
 def orthonormalize(block: np.ndarray) -> np.ndarray:
@@ -112,19 +132,6 @@ def dense_lowest_eigenpairs(matrix: np.ndarray, n: int) -> tuple[np.ndarray, np.
     return w, np.ascontiguousarray(v.T)
 
 
-class _Clock:
-    """Times the dense linear-algebra calls (BLAS and LAPACK) for the benchmarks."""
-
-    def __init__(self):
-        self.seconds = 0.0
-
-    def __call__(self, fn, *args):
-        t0 = time.perf_counter()
-        out = fn(*args)
-        self.seconds += time.perf_counter() - t0
-        return out
-
-
 def _check_finite(h_sub: np.ndarray) -> None:
     # Non-finite values in an H block reach the subspace matrix through the
     # overlaps, so checking the small matrix is enough.
@@ -134,7 +141,8 @@ def _check_finite(h_sub: np.ndarray) -> None:
 
 def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.ndarray, *,
              tolerance: float = 1e-6, max_iterations: int = 100, n_converge: int | None = None,
-             max_subspace_factor: int = 3) -> DavidsonResult:
+             max_subspace_factor: int = 3,
+             total: Callable[[np.ndarray], np.ndarray] | None = None) -> DavidsonResult:
     """Lowest eigenpairs of a Hermitian operator by block Davidson with restarts.
 
     Parameters
@@ -154,6 +162,13 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
     max_subspace_factor
         The subspace is restarted from the Ritz vectors when it exceeds this
         many times n.
+    total
+        For vectors whose components (columns) are spread over several
+        processes: sums an array over them, giving every process the same bits.
+        Each process then passes its own columns of ``guess``, ``apply_h`` and
+        ``precondition`` map its columns to its columns, and the result holds
+        its columns of the eigenvectors. Every decision is taken on summed
+        quantities, so all processes take the same steps. Default: one process.
 
     Notes
     -----
@@ -167,22 +182,24 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
     """
     n = guess.shape[0]
     n_conv = n if n_converge is None else min(n, n_converge)
+    total = total or _same
     clock = _Clock()
-    v0 = clock(_orthonormalize_in_place, np.array(guess, dtype=complex))
+    v0 = _orthonormalize_in_place(np.array(guess, dtype=complex), clock, total)
     if v0.shape[0] < n:
         raise np.linalg.LinAlgError("starting vectors are linearly dependent")
-    n_basis = v0.shape[1]
+    n_local = v0.shape[1]
+    n_basis = int(round(float(total(np.array([float(n_local)]))[0])))
     max_sub = min(max(max_subspace_factor * n, n + 1), n_basis)
     # Subspace and its image under H live in preallocated row buffers: no
     # concatenation per step. Rows [0, m) are in use; new directions are built
     # in place in the rows after them.
-    v = np.empty((max_sub + n, n_basis), dtype=complex)
+    v = np.empty((max_sub + n, n_local), dtype=complex)
     hv = np.empty_like(v)
     m = n
     v[:n] = v0
     hv[:n] = apply_h(v[:n])
     n_apply = n
-    h_sub = clock(_overlap, v[:n], hv[:n])
+    h_sub = total(clock(_overlap, v[:n], hv[:n]))
     _check_finite(h_sub)
     iterations = 0
     while True:
@@ -194,7 +211,7 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
         theta = w[:n]
         residuals = hx - theta[:, None] * x
         parts = residuals.view(float)
-        norms = np.sqrt(np.einsum("ij,ij->i", parts, parts))
+        norms = np.sqrt(total(np.einsum("ij,ij->i", parts, parts)))
         if not np.all(np.isfinite(norms)):
             raise FloatingPointError("non-finite residuals in the eigensolver")
         active = np.flatnonzero(norms[:n_conv] > tolerance)
@@ -209,8 +226,8 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
         t = v[m:m + k]
         t[...] = precondition(residuals[active], theta[active])
         for _ in range(2):          # twice is enough (Kahan-Parlett)
-            clock(_project_out, v[:m], t)
-        q = clock(_orthonormalize_in_place, t)
+            _project_out(v[:m], t, clock, total)
+        q = _orthonormalize_in_place(t, clock, total)
         k = q.shape[0]
         if k == 0:
             break
@@ -220,13 +237,12 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
         ht = hv[m:m + k]
         ht[...] = apply_h(t)
         n_apply += k
-        off = clock(_overlap, v[:m], ht)
-        tt = clock(_overlap, t, ht)
+        # the new columns of the subspace matrix, <v_i|H t_j> for i < m + k, at once
+        new = total(clock(_overlap, v[:m + k], ht))
         grown = np.empty((m + k, m + k), dtype=complex)
         grown[:m, :m] = h_sub
-        grown[:m, m:] = off
-        grown[m:, :m] = off.conj().T
-        grown[m:, m:] = tt
+        grown[:, m:] = new
+        grown[m:, :m] = new[:m].conj().T
         _check_finite(grown)
         h_sub = grown
         m += k

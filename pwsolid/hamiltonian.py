@@ -62,7 +62,7 @@ def local_potential(lattice: np.ndarray, fractional_positions: np.ndarray, speci
     return v / volume
 
 
-def kinetic_preconditioner(kinetic: np.ndarray):
+def kinetic_preconditioner(kinetic: np.ndarray, total=None):
     """Teter-Payne-Allan preconditioner for residual rows of a plane-wave block.
 
     Notes
@@ -70,6 +70,10 @@ def kinetic_preconditioner(kinetic: np.ndarray):
     K(x) = (27 + 18x + 12x^2 + 8x^3) / (27 + 18x + 12x^2 + 8x^3 + 16x^4), with
     x = |k+G|^2/2 divided by the kinetic energy of the residual itself; it is
     1 for slow plane waves and falls as 1/(8x) ... for fast ones.
+
+    When the plane waves are spread over processes, ``kinetic`` holds this
+    process's and ``total`` sums the residuals' kinetic energies and norms over
+    the processes (see :func:`pwsolid.eigensolver.davidson`).
 
     References
     ----------
@@ -81,7 +85,10 @@ def kinetic_preconditioner(kinetic: np.ndarray):
         # real arithmetic and in-place polynomial: two (nb, n_pw) float scratch arrays
         r2 = np.square(residuals.real)
         r2 += np.square(residuals.imag)
-        ekin = (r2 @ kin) / np.maximum(r2.sum(axis=1), 1e-300)
+        sums = np.stack([r2 @ kin, r2.sum(axis=1)])
+        if total is not None:
+            sums = total(sums)
+        ekin = sums[0] / np.maximum(sums[1], 1e-300)
         x = np.divide(kin[None, :], np.maximum(ekin, 1e-3)[:, None])
         p = np.multiply(x, 8.0)
         p += 12

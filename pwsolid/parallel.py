@@ -15,9 +15,10 @@ code runs serially without mpi4py. Two levels of distribution exist:
 
 * inside one ground state, the irreducible k-points are spread over the
   processes (:func:`distribute`, used by :func:`pwsolid.scf.prepare`); when
-  there are more processes than k-points, the idle ones share the Hamiltonian
-  applications of an owner's k-point, a slice of the bands each
-  (:func:`band_group`);
+  there are more processes than k-points, the idle ones share the
+  eigensolver of an owner's k-point: each holds a slice of the plane waves of
+  every band for the dense algebra and transforms a slice of the bands for
+  the Hamiltonian (:func:`band_group`);
 * in a workflow of independent calculations (the volumes of an equation of
   state, the settings of a convergence study), whole calculations are spread
   over the processes with :func:`map_over_ranks`; each runs inside
@@ -43,7 +44,8 @@ from .fft import default_threads
 
 __all__ = ["fft_threads_for", "single_threaded_blas", "SerialCommunicator", "MPICommunicator",
            "world", "distribute", "split_evenly", "serial_section", "map_over_ranks",
-           "processes_on_this_node", "band_group", "apply_across", "serve_rows", "release"]
+           "processes_on_this_node", "band_group", "plane_wave_slice", "share_columns",
+           "collect_columns", "apply_by_plane_waves"]
 
 #: Grids with fewer points than this run their FFTs on one thread.
 _THREADED_FFT_POINTS = 48 ** 3
@@ -121,18 +123,25 @@ class SerialCommunicator:
         """Overwrite ``array`` on every process with the root's (in place); returns it."""
         return array
 
-    def gather_rows(self, rows, n_rows: int, root: int = 0):
-        """Stack every process's rows (split as :func:`split_evenly`) on ``root``."""
-        return rows
+    def alltoall_arrays(self, pieces, shapes) -> list:
+        """Send ``pieces[r]`` to process r; receive arrays of ``shapes[r]`` from each: ``pieces``."""
+        return [piece.reshape(shape) for piece, shape in zip(pieces, shapes)]
 
     def barrier(self) -> None:
         pass
-
 
 def _sum_op():
     from mpi4py import MPI
 
     return MPI.SUM
+
+
+def _offsets(counts) -> list[int]:
+    out, at = [], 0
+    for c in counts:
+        out.append(at)
+        at += c
+    return out
 
 
 def _mpi_type(dtype):
@@ -189,27 +198,27 @@ class MPICommunicator:
         self._comm.Bcast(array, root=root)
         return array
 
-    def gather_rows(self, rows, n_rows: int, root: int = 0):
-        """Stack the row blocks of every process on ``root`` (None elsewhere).
+    def alltoall_arrays(self, pieces, shapes) -> list:
+        """Send the array ``pieces[r]`` to process r; receive one of ``shapes[r]`` from each.
 
-        Process ``r`` passes the rows ``split_evenly(n_rows, size, r)`` of a
-        C-contiguous 2-D array; the root receives the whole (n_rows, n_cols)
-        array in one ``Gatherv``, the buffers as they are.
+        One ``Alltoallv`` of complex (or any one dtype) buffers; returns the
+        received arrays by sending process.
         """
         import numpy as np
 
-        rows = np.ascontiguousarray(rows)
-        n_cols = rows.shape[1]
-        counts = [len(split_evenly(n_rows, self.size, r)) * n_cols for r in range(self.size)]
-        displacements = [sum(counts[:r]) for r in range(self.size)]
-        out = np.empty((n_rows, n_cols), dtype=rows.dtype) if self.rank == root else None
-        self._comm.Gatherv(rows, [out, counts, displacements, _mpi_type(rows.dtype)]
-                           if self.rank == root else None, root=root)
-        return out
+        dtype = np.result_type(*pieces)
+        send = np.concatenate([np.ascontiguousarray(p, dtype=dtype).reshape(-1) for p in pieces])
+        send_counts = [int(np.prod(np.shape(p))) for p in pieces]
+        recv_counts = [int(np.prod(shape)) for shape in shapes]
+        recv = np.empty(sum(recv_counts), dtype=dtype)
+        kind = _mpi_type(dtype)
+        self._comm.Alltoallv([send, send_counts, _offsets(send_counts), kind],
+                             [recv, recv_counts, _offsets(recv_counts), kind])
+        offsets = _offsets(recv_counts)
+        return [recv[o:o + c].reshape(shape) for o, c, shape in zip(offsets, recv_counts, shapes)]
 
     def barrier(self) -> None:
         self._comm.Barrier()
-
 
 def world():
     """The communicator of this run: MPI when launched by an MPI launcher, else serial.
@@ -264,25 +273,27 @@ def split_evenly(n_items: int, size: int, rank: int) -> range:
     return range(start, start + base + (1 if rank < extra else 0))
 
 
-# ------------------------------------------------------- rows of one k-point's block
+# ------------------------------------------------- plane waves of one k-point's bands
 
-def band_group(comm, owned):
-    """The processes that share the Hamiltonian applications of this process's k-points.
+def band_group(comm, owned) -> tuple:
+    """The processes that share the eigensolver of this process's k-points, and those k-points.
 
     When there are more processes than channels (a Gamma-only supercell on two
     processes), :func:`distribute` leaves some processes without a k-point.
     Each such idle process joins the group of one owner (round robin over the
-    owners); in the group (a sub-communicator) the owner is rank 0 and runs
-    the eigensolver, and every member applies H to a slice of the rows of each
-    block (:func:`apply_across`, :func:`serve_rows`). With no idle process
-    every group is a single process and nothing changes.
+    owners). Returns ``(group, channels)``: the group is a sub-communicator in
+    which the owner is rank 0, and ``channels`` are the owner's k-points, which
+    every member then solves together, each holding a slice of the plane waves
+    (:func:`plane_wave_slice`, :func:`apply_by_plane_waves`). With no idle
+    process every group is one process and ``channels`` is ``owned``.
 
     Collective over ``comm``; the groups are made once per assignment and kept
     on the communicator.
     """
+    owned = tuple(int(j) for j in owned)
     if comm.size == 1:
-        return SerialCommunicator()
-    everyone = tuple(tuple(int(j) for j in part) for part in comm.allgather(tuple(owned)))
+        return SerialCommunicator(), owned
+    everyone = tuple(tuple(int(j) for j in part) for part in comm.allgather(owned))
     kept = comm.__dict__.setdefault("_band_groups", {})
     if everyone not in kept:
         owners = [r for r, part in enumerate(everyone) if part]
@@ -292,59 +303,73 @@ def band_group(comm, owned):
             leader[r] = owners[i % len(owners)] if owners else r
         me = comm.rank
         group = comm.split(leader[me], 0 if me in owners else me + 1)
-        kept[everyone] = group if group.size > 1 else SerialCommunicator()
+        kept[everyone] = (group if group.size > 1 else SerialCommunicator(),
+                          everyone[leader[me]])
     return kept[everyone]
 
 
-def _apply_my_rows(group, apply: Callable, block):
-    rows = split_evenly(len(block), group.size, group.rank)
-    mine = apply(block[rows.start:rows.stop])
-    return group.gather_rows(mine, len(block))
+def plane_wave_slice(group, n_pw: int) -> slice:
+    """The plane waves (columns of a band block) this member of a band group holds."""
+    part = split_evenly(n_pw, group.size, group.rank)
+    return slice(part.start, part.stop)
 
 
-def apply_across(group, key, apply: Callable) -> Callable:
-    """On rank 0 of a :func:`band_group`: ``apply`` with the rows of each block spread.
+def share_columns(group, block):
+    """This member's columns of rank 0's ``block`` (the others pass None)."""
+    import numpy as np
 
-    The returned function sends the block and ``key`` (which tells the other
-    members which operator to use, see :func:`serve_rows`) to the group, applies
-    ``apply`` to its own first rows, and gathers the other rows' results, so it
-    returns what ``apply(block)`` returns, up to rounding. A group of one
-    process gets ``apply`` itself.
+    if group.size == 1:
+        return block
+    shape = group.bcast(None if block is None else block.shape)
+    full = np.ascontiguousarray(block, dtype=complex) if group.rank == 0 else \
+        np.empty(shape, dtype=complex)
+    group.bcast_array(full)
+    return np.ascontiguousarray(full[:, plane_wave_slice(group, shape[1])])
+
+
+def collect_columns(group, local):
+    """The whole block on rank 0 from every member's columns (None on the others)."""
+    import numpy as np
+
+    if group.size == 1:
+        return local
+    parts = group.gather(local)
+    return np.concatenate(parts, axis=1) if group.rank == 0 else None
+
+
+def apply_by_plane_waves(group, n_pw: int, apply: Callable) -> Callable:
+    """``apply`` (full rows -> full rows) for blocks whose columns are spread over a group.
+
+    The returned function takes this member's columns of a block and returns
+    its columns of ``apply(block)``: the block is transposed among the members
+    (each receives whole rows, a slice of the bands), ``apply`` runs on those
+    rows, and the result is transposed back. Two all-to-all exchanges; a group
+    of one process gets ``apply`` itself.
     """
     if group.size == 1:
         return apply
     import numpy as np
 
-    def spread(block):
-        block = np.ascontiguousarray(block, dtype=complex)
-        group.bcast((key, block.shape))
-        group.bcast_array(block)
-        return _apply_my_rows(group, apply, block)
+    size, me = group.size, group.rank
+    columns = [split_evenly(n_pw, size, r) for r in range(size)]
+    mine = columns[me]
+
+    def spread(local):
+        rows = [split_evenly(len(local), size, r) for r in range(size)]
+        pieces = group.alltoall_arrays([local[r.start:r.stop] for r in rows],
+                                       [(len(rows[me]), len(c)) for c in columns])
+        whole = np.empty((len(rows[me]), n_pw), dtype=complex)
+        for c, piece in zip(columns, pieces):
+            whole[:, c.start:c.stop] = piece
+        result = apply(whole)
+        pieces = group.alltoall_arrays([result[:, c.start:c.stop] for c in columns],
+                                       [(len(r), len(mine)) for r in rows])
+        out = np.empty((len(local), len(mine)), dtype=complex)
+        for r, piece in zip(rows, pieces):
+            out[r.start:r.stop] = piece
+        return out
 
     return spread
-
-
-def serve_rows(group, operator_for: Callable) -> None:
-    """On the other members of a :func:`band_group`: apply to rows until rank 0 releases.
-
-    ``operator_for(key)`` returns the function to apply for a ``key`` sent by
-    :func:`apply_across`.
-    """
-    import numpy as np
-
-    while True:
-        message = group.bcast(None)
-        if message is None:
-            return
-        key, shape = message
-        block = group.bcast_array(np.empty(shape, dtype=complex))
-        _apply_my_rows(group, operator_for(key), block)
-
-
-def release(group) -> None:
-    """On rank 0 of a :func:`band_group`: end the other members' :func:`serve_rows`."""
-    if group.size > 1:
-        group.bcast(None)
 
 
 class _RemoteFailure:

@@ -514,41 +514,38 @@ def _solve_bands(setup: SystemSetup, state: SCFState, v_eff: np.ndarray, tol: fl
                  max_iterations: int, n_converge: int) -> tuple[np.ndarray, int]:
     """Davidson at every owned k-point, warm-started from ``state.wavefunctions``;
     the lowest ``n_converge`` bands must meet ``tol``."""
-    from .parallel import apply_across, band_group, release, serve_rows
+    from .parallel import (apply_by_plane_waves, band_group, collect_columns, plane_wave_slice,
+                           share_columns)
 
     nb = setup.n_bands
     applications = 0
     eigs = np.zeros((setup.n_channels, nb))
-    hamiltonians: dict = {}
-
-    def hamiltonian(j: int) -> KPointHamiltonian:
-        if j not in hamiltonians:       # keep one: each holds a potential on the grid
-            hamiltonians.clear()
-            spin, ik = setup.channel(j)
-            hamiltonians[j] = KPointHamiltonian(setup.bases[ik], setup.fft,
-                                                _channel_potential(v_eff, spin),
-                                                *setup.nonlocal_ops[ik])
-        return hamiltonians[j]
-
-    # processes without a k-point apply H to slices of an owner's blocks (more
-    # processes than k-points, e.g. a Gamma-only supercell); see parallel.band_group
-    group = band_group(setup.comm, setup.owned)
-    if not setup.owned:
-        serve_rows(group, lambda j: hamiltonian(j).apply)
-    try:
-        for j in setup.owned:
-            ham = hamiltonian(j)
-            result = davidson(apply_across(group, j, ham.apply),
-                              kinetic_preconditioner(ham.basis.kinetic), state.wavefunctions[j],
-                              tolerance=tol, max_iterations=max_iterations,
-                              n_converge=n_converge)
-            state.wavefunctions[j] = result.vectors
+    # With more processes than k-points (a Gamma-only supercell), the idle ones
+    # join an owner: the group solves the owner's k-points together, each member
+    # holding a slice of the plane waves (see parallel.band_group). Alone, the
+    # group is this process and every step below is the serial one.
+    group, channels = band_group(setup.comm, setup.owned)
+    total = group.allreduce_sum if group.size > 1 else None
+    if total is not None:   # the owner's limits (a fresh start iterates longer): same steps
+        tol, max_iterations, n_converge = group.bcast((tol, max_iterations, n_converge))
+    for j in channels:
+        spin, ik = setup.channel(j)
+        basis = setup.bases[ik]
+        ham = KPointHamiltonian(basis, setup.fft, _channel_potential(v_eff, spin),
+                                *setup.nonlocal_ops[ik])
+        mine = plane_wave_slice(group, basis.size)
+        result = davidson(apply_by_plane_waves(group, basis.size, ham.apply),
+                          kinetic_preconditioner(basis.kinetic[mine], total=total),
+                          share_columns(group, state.wavefunctions[j] if group.rank == 0 else None),
+                          tolerance=tol, max_iterations=max_iterations, n_converge=n_converge,
+                          total=total)
+        if group.rank == 0:         # the owner keeps the whole vectors; helpers count nothing
+            state.wavefunctions[j] = collect_columns(group, result.vectors)
             eigs[j] = result.eigenvalues
             applications += result.n_applications
             state.blas_seconds += result.seconds_blas
-    finally:
-        if setup.owned:
-            release(group)
+        else:
+            collect_columns(group, result.vectors)
     return setup.comm.allreduce_sum(eigs), setup.comm.allreduce_sum(applications)
 
 

@@ -383,47 +383,77 @@ def test_convergence_study_on_two_processes_matches_the_serial_study():
         assert study.messages == serial.messages
 
 
-class _RowCommunicator(_FakeCommunicator):
+class _BlockCommunicator(_FakeCommunicator):
     """The fake communicator with the buffer calls of the band groups."""
 
     def bcast_array(self, array, root=0):
         array[...] = self.bcast(np.array(array), root)
         return array
 
-    def gather_rows(self, rows, n_rows, root=0):
-        parts = self.gather(np.array(rows), root)
-        return None if parts is None else np.concatenate(parts)
+    def alltoall_arrays(self, pieces, shapes):
+        sent = self.allgather([np.array(p) for p in pieces])
+        return [sent[r][self.rank].reshape(shape) for r, shape in enumerate(shapes)]
 
 
-def test_rows_of_each_block_are_shared_by_a_band_group():
-    # rank 0 runs the "eigensolver" (three blocks, one with fewer rows than
-    # processes); the others serve until released; rows are split in order
-    operators = {"a": lambda x: 2.0 * x, "b": lambda x: x + 1j}
-    blocks = [("a", np.arange(12.0).reshape(6, 2)), ("b", np.ones((1, 2))),
-              ("a", np.arange(10.0).reshape(5, 2))]
+def test_plane_wave_columns_are_shared_and_transposed_for_the_operator():
+    # three fake processes hold column slices; the operator sees whole rows, a
+    # slice of them on each process, and every process gets its columns back
+    rng = np.random.default_rng(5)
+    matrix = rng.standard_normal((10, 10)) + 1j * rng.standard_normal((10, 10))
+    block = rng.standard_normal((4, 10)) + 0j
 
     def body(comm):
         seen = []
 
-        def operator_for(key):
-            return lambda x: (seen.append(len(x)), operators[key](x))[1]
+        def apply(rows):
+            seen.append(rows.shape)
+            return rows @ matrix.T
 
-        if comm.rank == 0:
-            out = [parallel.apply_across(comm, key, operator_for(key))(block)
-                   for key, block in blocks]
-            parallel.release(comm)
-        else:
-            out = parallel.serve_rows(comm, operator_for)
-        return out, seen
+        local = parallel.share_columns(comm, block if comm.rank == 0 else None)
+        out = parallel.apply_by_plane_waves(comm, 10, apply)(local)
+        return parallel.collect_columns(comm, out), local.shape, seen
 
-    results = _Group(3).run(_RowCommunicator, body)
-    for (key, block), got in zip(blocks, results[0][0]):
-        np.testing.assert_array_equal(got, operators[key](block.astype(complex)))
-    assert [r[1] for r in results] == [[2, 1, 2], [2, 0, 2], [2, 0, 1]]
+    results = _Group(3).run(_BlockCommunicator, body)
+    np.testing.assert_allclose(results[0][0], block @ matrix.T, rtol=0, atol=1e-12)
+    assert results[1][0] is None
+    assert [r[1] for r in results] == [(4, 4), (4, 3), (4, 3)]
+    assert [r[2] for r in results] == [[(2, 10)], [(1, 10)], [(1, 10)]]
+
+
+def test_davidson_on_plane_wave_slices_matches_one_process():
+    # the eigensolver with its vectors' columns on two fake processes, the
+    # overlaps summed by the communicator, against the same problem on one
+    from pwsolid.eigensolver import davidson
+
+    rng = np.random.default_rng(7)
+    n = 80
+    d = np.sort(rng.uniform(0, 30, n))
+    a = rng.standard_normal((n, n)) + 1j * rng.standard_normal((n, n))
+    h = np.diag(d) + 0.05 * (a + a.conj().T)
+    guess = rng.standard_normal((5, n)) + 0j
+
+    def precondition_for(cols):
+        return lambda r, e: r / np.maximum(np.abs(d[cols][None, :] - e[:, None]), 0.3)
+
+    serial = davidson(lambda x: x @ h.T, precondition_for(slice(0, n)), guess, tolerance=1e-9,
+                      max_iterations=300)
+
+    def body(comm):
+        cols = parallel.plane_wave_slice(comm, n)
+        res = davidson(parallel.apply_by_plane_waves(comm, n, lambda x: x @ h.T),
+                       precondition_for(cols), guess[:, cols], tolerance=1e-9,
+                       max_iterations=300, total=comm.allreduce_sum)
+        return res.eigenvalues, res.iterations, parallel.collect_columns(comm, res.vectors)
+
+    (e0, it0, vectors), (e1, it1, _) = _Group(2).run(_BlockCommunicator, body)
+    assert np.array_equal(e0, e1) and it0 == it1    # every process took the same steps
+    np.testing.assert_allclose(e0, serial.eigenvalues, rtol=0, atol=1e-10)
+    overlap = np.abs(vectors.conj() @ serial.vectors.T)
+    np.testing.assert_allclose(overlap, np.eye(5), atol=1e-6)
 
 
 def test_band_groups_are_single_processes_serially():
-    group = parallel.band_group(SerialCommunicator(), (0, 1))
+    group, channels = parallel.band_group(SerialCommunicator(), (0, 1))
     apply = lambda x: x  # noqa: E731
-    assert group.size == 1 and parallel.apply_across(group, 0, apply) is apply
-    parallel.release(group)
+    assert group.size == 1 and channels == (0, 1)
+    assert parallel.apply_by_plane_waves(group, 4, apply) is apply
