@@ -46,8 +46,10 @@ def gamma_supercell() -> dict:
     cell = pwsolid.Crystal(a * np.eye(3), ("Si",) * 8,
                            [[0, 0, 0], [0, .5, .5], [.5, 0, .5], [.5, .5, 0],
                             [.25, .25, .25], [.25, .75, .75], [.75, .25, .75], [.75, .75, .25]])
+    # 8 Ha: the first Davidson call needs 5 steps, more than the later calls'
+    # limit of 4, which only the owner's fresh start allows (the group must follow it)
     settings = pwsolid.GroundStateSettings(
-        pseudopotentials={"Si": "Si-goedecker-teter-hutter.toml"}, cutoff=5.0,
+        pseudopotentials={"Si": "Si-goedecker-teter-hutter.toml"}, cutoff=8.0,
         kpoint_mesh=(1, 1, 1), kpoint_shift=(0, 0, 0), energy_tolerance=1e-10,
         density_tolerance=1e-7)
     gs = pwsolid.ground_state(cell, settings)
