@@ -245,7 +245,7 @@ def _projectors(entries, src: str) -> SeparablePart:
             raise InputError("h must be a symmetric square matrix of numbers (1 to 3 rows)",
                              key=f"{key}.h", value=entry.get("h", entry.get("h_diagonal")),
                              source=src) from None
-        if not 1 <= h.shape[0] <= 3 or (l == 2 and h.shape[0] > 2):
-            raise InputError("1 to 3 radial projectors (2 for l = 2)", key=key, source=src)
+        if not 1 <= h.shape[0] <= 3:
+            raise InputError("1 to 3 radial projectors", key=key, source=src)
         channels.append(ProjectorChannel(l=int(l), radius=radius, h=h * scale))
     return SeparablePart(tuple(channels))

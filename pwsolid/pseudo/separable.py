@@ -101,7 +101,9 @@ def projector_radial(l: int, i: int, radius: float, q: np.ndarray) -> np.ndarray
     (16/3) sqrt(2 r^3/105) pi^(5/4) (15 - 10 g^2 + g^4) E;
     (l=1) 8 sqrt(r^5/3) pi^(5/4) q E; 16 sqrt(r^5/105) pi^(5/4) q (5 - g^2) E;
     (32/3) sqrt(r^5/1155) pi^(5/4) q (35 - 14 g^2 + g^4) E;
-    (l=2) 8 sqrt(2 r^7/15) pi^(5/4) q^2 E; 16 sqrt(2 r^7/945) pi^(5/4) q^2 (7 - g^2) E.
+    (l=2) 8 sqrt(2 r^7/15) pi^(5/4) q^2 E; 16 sqrt(2 r^7/945) pi^(5/4) q^2 (7 - g^2) E;
+    (32/3) sqrt(2 r^7/15015) pi^(5/4) q^2 (63 - 18 g^2 + g^4) E.
+    The polynomials are Laguerre polynomials L_(i-1)^(l+1/2)(g^2/2), scaled.
     """
     q = np.asarray(q, float)
     r = radius
@@ -116,6 +118,8 @@ def projector_radial(l: int, i: int, radius: float, q: np.ndarray) -> np.ndarray
         (1, 3): lambda: 32 / 3 * math.sqrt(r ** 5 / 1155) * _PI54 * q * (35 - 14 * g2 + g2 * g2) * e,
         (2, 1): lambda: 8 * math.sqrt(2 * r ** 7 / 15) * _PI54 * q * q * e,
         (2, 2): lambda: 16 * math.sqrt(2 * r ** 7 / 945) * _PI54 * q * q * (7 - g2) * e,
+        (2, 3): lambda: 32 / 3 * math.sqrt(2 * r ** 7 / 15015) * _PI54 * q * q
+        * (63 - 18 * g2 + g2 * g2) * e,
     }
     if (l, i) not in table:
         raise ValueError(f"no closed-form projector for l={l}, i={i}")

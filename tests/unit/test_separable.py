@@ -7,6 +7,7 @@ import pytest
 from scipy.integrate import quad
 from scipy.special import eval_legendre, spherical_jn
 
+import pwsolid
 from pwsolid.basis import fft_grid_for_cutoff, make_basis
 from pwsolid.eigensolver import davidson, dense_lowest_eigenpairs
 from pwsolid.fft import make_fft_grid
@@ -16,7 +17,7 @@ from pwsolid.pseudo.separable import (hgh_off_diagonal, nonlocal_operator, proje
                                       projector_radial_real, real_spherical_harmonics)
 from pwsolid.resources import pseudopotential_dir
 
-CASES = [(0, 1), (0, 2), (0, 3), (1, 1), (1, 2), (1, 3), (2, 1), (2, 2)]
+CASES = [(0, 1), (0, 2), (0, 3), (1, 1), (1, 2), (1, 3), (2, 1), (2, 2), (2, 3)]
 
 
 @pytest.mark.parametrize("l,i", CASES)
@@ -73,18 +74,23 @@ def test_nonlocal_matrix_equals_the_legendre_formula(silicon):
     k = np.array([0.1, 0.25, -0.3])
     pp, basis, _, proj, coupling = _silicon_operator(silicon, k)
     dense = proj.T @ coupling @ proj.conj()
-    g = basis.kpg
+    atoms = [(tau, pp.separable) for tau in silicon.cartesian_positions]
+    assert np.allclose(dense, _legendre_matrix(basis.kpg, atoms, silicon.volume), atol=1e-12)
+
+
+def _legendre_matrix(g, atoms, volume):
+    """<k+G|V_nl|k+G'> summed over atoms with the addition theorem, no harmonics."""
     q = np.linalg.norm(g, axis=1)
-    cos = (g @ g.T) / np.outer(q, q)
-    ref = np.zeros_like(dense)
-    for tau in silicon.cartesian_positions:
+    cos = np.clip((g @ g.T) / np.outer(q, q), -1, 1)
+    ref = np.zeros((len(q), len(q)), complex)
+    for tau, part in atoms:
         phase = np.exp(-1j * (g @ tau))
         pair = np.outer(phase, phase.conj())
-        for ch in pp.separable.channels:
+        for ch in part.channels:
             radial = np.array([projector_radial(ch.l, i + 1, ch.radius, q) for i in range(ch.n_radial)])
             ang = (2 * ch.l + 1) / (4 * math.pi) * eval_legendre(ch.l, cos)
-            ref += pair * ang * (radial.T @ ch.h @ radial) / silicon.volume
-    assert np.allclose(dense, ref, atol=1e-12)
+            ref += pair * ang * (radial.T @ ch.h @ radial) / volume
+    return ref
 
 
 def test_hamiltonian_with_projectors_is_hermitian_and_davidson_matches_dense(silicon, rng):
@@ -99,3 +105,29 @@ def test_hamiltonian_with_projectors_is_hermitian_and_davidson_matches_dense(sil
     res = davidson(ham.apply, kinetic_preconditioner(basis.kinetic),
                    rng.standard_normal((8, basis.size)) + 0j, tolerance=1e-9, max_iterations=300)
     assert np.max(np.abs(res.eigenvalues - ref)) < 1e-8
+
+
+def test_d_projectors_and_three_s_projectors_match_the_legendre_formula():
+    # Gallium arsenide with the 1998 Ga and As files: three s, two p and one d projector
+    # per atom, two species. Same independent construction as above (REFERENCES 5a).
+    crystal = pwsolid.zincblende(pwsolid.angstrom(5.6), ["Ga", "As"])
+    pps = [load_pseudopotential(pseudopotential_dir() / f"{el}-hartwigsen-goedecker-hutter.toml")
+           for el in ("Ga", "As")]
+    assert [len(c.h) for c in pps[0].separable.channels] == [3, 2, 1]
+    k = np.array([0.05, -0.2, 0.3])
+    grid = fft_grid_for_cutoff(crystal.lattice, 4.0)
+    basis = make_basis(crystal.lattice, k, 4.0, grid)
+    atoms = list(zip(crystal.cartesian_positions, [p.separable for p in pps]))
+    proj, coupling = nonlocal_operator(basis.kpg, atoms, crystal.volume)
+    assert proj.shape[0] == 2 * (3 + 2 * 3 + 5)
+    dense = proj.T @ coupling @ proj.conj()
+    assert np.allclose(dense, _legendre_matrix(basis.kpg, atoms, crystal.volume), atol=1e-12)
+
+
+def test_hgh_off_diagonal_relations_for_d():
+    # Hartwigsen, Goedecker & Hutter (1998), Eq. (8) as recalled in REFERENCES 5a [M]
+    h = hgh_off_diagonal(2, [1.0, 2.0, 3.0])
+    assert np.isclose(h[0, 1], -0.5 * math.sqrt(7 / 9) * 2.0)
+    assert np.isclose(h[0, 2], 0.5 * math.sqrt(63 / 143) * 3.0)
+    assert np.isclose(h[1, 2], -0.5 * 18 / math.sqrt(143) * 3.0)
+    assert np.allclose(h, h.T)

@@ -12,7 +12,13 @@ The settings here are moderately converged so the suite stays fast (5-point scan
 +-8% in volume; narrower spans let the basis-size steps of a fixed
 cutoff spoil B0); `python tests/validation/lattice_constant_table.py` runs the converged
 table (higher cutoffs, denser meshes, 7 points), quoted in the README.
+
+Germanium and gallium arsenide use 1998 parameter sets recalled from memory (the paper's
+Table I could not be read); both miss the window and are strict xfails with the measured
+values, so a corrected file shows up as a failure to be turned into a pass.
 """
+
+import dataclasses
 
 import numpy as np
 import pytest
@@ -34,14 +40,27 @@ CASES = {
            14.0, 10, "cold", (3.98, 3.99), 83.0, 4.019),
     "Na": (pwsolid.body_centred_cubic, 4.00, "Na", "Na-hartwigsen-goedecker-hutter.toml",
            10.0, 8, "cold", (4.05, 4.06), 9.0, 4.209),
+    # Ge: cold smearing, since LDA germanium's gap closes at expanded volumes of the scan
+    "Ge": (pwsolid.diamond, 5.63, "Ge", "Ge-hartwigsen-goedecker-hutter.toml", 16.0, 2, "cold",
+           (5.62, 5.64), 72.0, 5.644),
+    "GaAs": (pwsolid.zincblende, 5.61, ["Ga", "As"],
+             {"Ga": "Ga-hartwigsen-goedecker-hutter.toml",
+              "As": "As-hartwigsen-goedecker-hutter.toml"}, 16.0, 4, "none",
+             (5.60, 5.62), 74.0, 5.641),
 }
 
 
-def equilibrium(name, points=5, span=0.08):
-    builder, a0, species, pp, cutoff, mesh, smearing, *_ = CASES[name]
-    settings = pwsolid.GroundStateSettings(
+def _settings(name):
+    _, _, species, pp, cutoff, mesh, smearing, *_ = CASES[name]
+    # one file name for an element, or a table {element: file} for a compound
+    return pwsolid.GroundStateSettings(
         cutoff=cutoff, kpoint_mesh=(mesh,) * 3, smearing=smearing, smearing_width=0.01,
-        pseudopotentials={species: pp})
+        pseudopotentials=pp if isinstance(pp, dict) else {species: pp})
+
+
+def equilibrium(name, points=5, span=0.08):
+    builder, a0, species, *_ = CASES[name]
+    settings = _settings(name)
     volumes, energies = [], []
     for f in np.linspace(1 - span, 1 + span, points) ** (1 / 3):
         crystal = builder(pwsolid.angstrom(a0 * f), species)
@@ -88,13 +107,52 @@ def test_against_experiment_and_the_curvature_of_the_data(name, a_exp, b_exp):
     # B0 from the fit against V E''(V0) from a central finite difference of three new
     # SCF energies at V0 and V0 (1 +- 4%) (2%); a wider step would add truncation error,
     # a narrower one the basis-size steps of a fixed cutoff (both below 1% here).
-    builder, _, species, pp, cutoff, mesh, smearing, *_ = CASES[name]
-    settings = pwsolid.GroundStateSettings(
-        cutoff=cutoff, kpoint_mesh=(mesh,) * 3, smearing=smearing, smearing_width=0.01,
-        pseudopotentials={species: pp})
+    builder, _, species, *_ = CASES[name]
+    settings = _settings(name)
     a_of_v = pwsolid.angstrom(a) / fit.v0 ** (1 / 3)
     h = 0.04 * fit.v0
     e = [pwsolid.ground_state(builder(a_of_v * (fit.v0 + d) ** (1 / 3), species),
                               settings).zero_width_energy for d in (-h, 0.0, h)]
     b_fd = fit.v0 * (e[0] - 2 * e[1] + e[2]) / h ** 2
     assert abs(b_fd / fit.b0 - 1) < 0.02, (name, b_fd, fit.b0)
+
+
+@pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
+    "germanium with the 1998 four-electron set as recalled from memory (the paper's table "
+    "was not read) comes out at 5.80 angstrom and B = 55 GPa (20 Ha, 6^3 mesh), 2.9% above "
+    "the all-electron window and above experiment, and semimetallic (the L conduction "
+    "state 0.4 eV below the valence top at 5.658 angstrom): the recalled parameters are "
+    "most likely wrong; strict, so a corrected file makes this fail loudly"))
+def test_germanium_lattice_constant():
+    _check("Ge")
+
+
+@pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
+    "gallium arsenide with the 1998 three-electron Ga and five-electron As sets as recalled "
+    "from memory comes out at 5.529 angstrom (B = 76 GPa; 20 Ha, 6^3 mesh), 1.3% below the "
+    "all-electron window: either the recalled values are off or the frozen Ga 3d shell "
+    "without a nonlinear core correction binds too strongly; strict, so a fix shows up"))
+def test_gallium_arsenide_lattice_constant():
+    _check("GaAs")
+
+
+def test_gallium_arsenide_gap_is_direct_at_gamma():
+    # LDA gives gallium arsenide a direct gap at Gamma, much smaller than the measured
+    # 1.52 eV (REFERENCES 7, from memory); with the Ga 3d shell frozen in the core it lies
+    # roughly between 0.3 and 1.0 eV at the experimental lattice constant (from memory).
+    # The window is wide because the value was not read from a paper; a wrong set that
+    # made the gap indirect (minimum at X or L) or closed it would fail here.
+    # 5.653 angstrom: room-temperature experiment (REFERENCES 6a, from memory).
+    crystal = pwsolid.zincblende(pwsolid.angstrom(5.653), ["Ga", "As"])
+    # 16 Ha and a 4^3 mesh give 0.47 eV here, within 0.01 eV of 20 Ha (measured)
+    settings = dataclasses.replace(_settings("GaAs"), empty_bands=4)
+    gs = pwsolid.ground_state(crystal, settings)
+    assert gs.converged
+    bands = pwsolid.band_structure(gs, path="L-G-X", n_points=9)
+    top = bands.at_label("G")[3]
+    gap_g = (bands.at_label("G")[4] - top) * pwsolid.HARTREE_EV
+    assert 0.3 < gap_g < 1.0, gap_g
+    for label in ("L", "X"):
+        assert bands.at_label(label)[3] < top
+        assert (bands.at_label(label)[4] - top) * pwsolid.HARTREE_EV > gap_g + 0.2, label
+    assert bands.gaps.gap_kind == "direct"
