@@ -135,7 +135,7 @@ def dense_lowest_eigenpairs(matrix: np.ndarray, n: int) -> tuple[np.ndarray, np.
 def _check_finite(h_sub: np.ndarray) -> None:
     # Non-finite values in an H block reach the subspace matrix through the
     # overlaps, so checking the small matrix is enough.
-    if not np.all(np.isfinite(h_sub)):
+    if not np.isfinite(h_sub).all():
         raise FloatingPointError("the operator returned non-finite values in the eigensolver")
 
 
@@ -212,7 +212,7 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
         residuals = hx - theta[:, None] * x
         parts = residuals.view(float)
         norms = np.sqrt(total(np.einsum("ij,ij->i", parts, parts)))
-        if not np.all(np.isfinite(norms)):
+        if not np.isfinite(norms).all():
             raise FloatingPointError("non-finite residuals in the eigensolver")
         active = np.flatnonzero(norms[:n_conv] > tolerance)
         if active.size == 0 or iterations >= max_iterations:

@@ -85,7 +85,9 @@ def kinetic_preconditioner(kinetic: np.ndarray, total=None):
         # real arithmetic and in-place polynomial: two (nb, n_pw) float scratch arrays
         r2 = np.square(residuals.real)
         r2 += np.square(residuals.imag)
-        sums = np.stack([r2 @ kin, r2.sum(axis=1)])
+        sums = np.empty((2, len(r2)))
+        np.matmul(r2, kin, out=sums[0])
+        r2.sum(axis=1, out=sums[1])
         if total is not None:
             sums = total(sums)
         ekin = sums[0] / np.maximum(sums[1], 1e-300)

@@ -132,7 +132,13 @@ def test_gamma_supercell_shares_the_bands_of_its_one_kpoint(tmp_path):
     # the rows of each H block are computed in other FFT batches: rounding only,
     # far below the 1e-10 Ha of the SCF tolerance
     assert abs(two["total_energy_Ha"] - serial["total_energy_Ha"]) < 1e-10
-    np.testing.assert_allclose(two["eigenvalues_Ha"], serial["eigenvalues_Ha"], atol=1e-7, rtol=0)
+    # a Ritz value lies within its residual norm of an eigenvalue, and every band
+    # meets the eigensolver's residual tolerance (at most 1e-6); the 16 occupied
+    # bands as in the k-point test above, the empty ones (the top one cuts a
+    # degenerate set) to that bound
+    eig1, eig2 = np.array(serial["eigenvalues_Ha"]), np.array(two["eigenvalues_Ha"])
+    np.testing.assert_allclose(eig2, eig1, atol=2e-6, rtol=0)
+    np.testing.assert_allclose(eig2[:, :16], eig1[:, :16], atol=1e-7, rtol=0)
 
 
 def test_band_structure_kpoints_are_spread_and_gathered(tmp_path):
