@@ -27,7 +27,7 @@ import numpy as np
 from .errors import InputError
 from .symmetry import SymmetryOperations, identity_only
 
-__all__ = ["monkhorst_pack", "KPointSet", "irreducible_kpoints"]
+__all__ = ["monkhorst_pack", "KPointSet", "irreducible_kpoints", "join_by_full_symmetry"]
 
 _MESH_KEY = "brillouin_zone.mesh"
 _SHIFT_KEY = "brillouin_zone.shift"
@@ -232,3 +232,54 @@ def irreducible_kpoints(mesh, shift=(0.0, 0.0, 0.0), operations: SymmetryOperati
     frac.setflags(write=False)
     weights.setflags(write=False)
     return KPointSet(frac, weights, mesh, shift, kept_ops, n_full, bool(time_reversal))
+
+
+def join_by_full_symmetry(kset: KPointSet, operations: SymmetryOperations) -> KPointSet:
+    """Join irreducible points of a mesh that the crystal's full group relates.
+
+    Parameters
+    ----------
+    kset : KPointSet
+        A mesh reduced with the operations that map the mesh onto itself
+        (:func:`irreducible_kpoints`).
+    operations : SymmetryOperations
+        All operations of the crystal.
+
+    Returns
+    -------
+    KPointSet
+        ``kset`` itself when its operations are already all of them; otherwise the
+        points with those that an operation of the full group (or time reversal
+        with it) maps onto each other joined (weights added, the first kept), and
+        ``operations`` set to the full group.
+
+    Notes
+    -----
+    A mesh that some operations do not map onto itself (a shifted mesh of an fcc
+    cell, say) samples the zone unevenly in their eyes. Symmetrising the density
+    with the full group then gives the density of the mesh's star (every point
+    with all its images, the weight of each point spread evenly over them), which
+    is what makes the density, the potential and the eigenvalues carry the
+    crystal's symmetry (degenerate levels at Gamma stay degenerate). In that star
+    the images of joined points share their eigenvalues, so one representative
+    with the summed weight gives the same band sums (common practice).
+    """
+    if operations is None or kset.operations.n_ops >= operations.n_ops:
+        return kset
+    rots = np.asarray(operations.rotations, dtype=float)
+    k = np.asarray(kset.fractional, float)
+    images = np.einsum("ka,rab->rkb", k, rots)                      # (n_ops, n_k, 3)
+    if kset.time_reversal:
+        images = np.concatenate([images, -images])
+    # same[i, j]: some image of point i equals point j modulo a reciprocal lattice vector
+    diff = images[:, :, None, :] - k[None, None, :, :]
+    same = np.any(np.all(np.abs(diff - np.rint(diff)) < 1e-9, axis=-1), axis=0)
+    first = np.argmax(same | np.eye(len(k), dtype=bool), axis=1)     # smallest equivalent
+    keep = np.flatnonzero(first == np.arange(len(k)))
+    weights = np.zeros(len(k))
+    np.add.at(weights, first, kset.weights)
+    frac, w = k[keep].copy(), weights[keep]
+    frac.setflags(write=False)
+    w.setflags(write=False)
+    return KPointSet(frac, w, kset.mesh, kset.shift, operations, kset.full_mesh_size,
+                     kset.time_reversal)

@@ -29,7 +29,7 @@ from .checkpoint import load_checkpoint, save_checkpoint
 from .errors import ConvergenceError, ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, kinetic_preconditioner, local_potential
-from .kpoints import KPointSet, irreducible_kpoints
+from .kpoints import KPointSet, irreducible_kpoints, join_by_full_symmetry
 from .mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
 from .parallel import (SerialCommunicator, distribute, fft_threads_for, single_threaded_blas,
                        world)
@@ -156,6 +156,9 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
     k_list = irreducible_kpoints(settings.kpoint_mesh, settings.kpoint_shift,
                                symmetry if settings.use_symmetry else None,
                                time_reversal=settings.use_symmetry)
+    if settings.use_symmetry:
+        # a mesh the full group does not keep: symmetrise with the full group anyway
+        k_list = join_by_full_symmetry(k_list, symmetry)
     grid = settings.fft_grid or fft_grid_for_cutoff(crystal.lattice, settings.cutoff)
     try:
         bases = [make_basis(crystal.lattice, k, settings.cutoff, grid) for k in k_list.fractional]

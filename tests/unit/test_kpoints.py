@@ -201,3 +201,39 @@ def test_accepts_integral_floats_and_numpy_ints():
     a = monkhorst_pack(np.array([2, 2, 2]), np.array([0.5, 0.5, 0.0]))
     b = monkhorst_pack((2.0, 2, 2), (0.5, 0.5, 0))
     np.testing.assert_array_equal(a, b)
+
+
+@pytest.mark.parametrize("make, mesh, shift", [
+    (lambda: cr.diamond(10.26, "Si"), (2, 2, 2), 0.5),
+    (lambda: cr.diamond(10.26, "Si"), (4, 4, 4), 0.5),
+    (lambda: cr.diamond(10.26, "Si"), (4, 4, 2), 0.0),
+    (lambda: cr.hexagonal_close_packed(6.06, "Mg", c_over_a=1.624), (4, 4, 3), 0.5),
+])
+def test_joined_points_give_the_full_group_average_of_any_function(make, mesh, shift):
+    """Over the joined set, the weighted sum of f(k) equals the mesh average of the
+    group average of f: exactly what symmetrising with the full group means."""
+    from pwsolid.kpoints import join_by_full_symmetry
+
+    crystal = make()
+    ops = find_symmetry(crystal)
+    mesh_set = irreducible_kpoints(mesh, shift, ops)
+    joined = join_by_full_symmetry(mesh_set, ops)
+    assert joined.operations.n_ops == ops.n_ops
+    assert joined.weights.sum() == pytest.approx(1.0, abs=1e-14)
+    assert joined.n_kpoints <= mesh_set.n_kpoints
+
+    def f(frac):                      # periodic in the zone, of no particular symmetry
+        x = 2 * np.pi * np.asarray(frac)
+        return np.cos(x @ [1, 0, 2]) + 0.3 * np.sin(x @ [0, 1, -1] + 0.4) + 0.2 * np.cos(x @ [3, 1, 0])
+
+    def group_average(frac):
+        imgs = [s * (np.asarray(frac) @ w) for w in ops.rotations for s in (1, -1)]
+        return np.mean([f(x) for x in imgs], axis=0)
+
+    full = monkhorst_pack(mesh, shift)
+    expected = np.mean(group_average(full))
+    assert np.dot(joined.weights, group_average(joined.fractional)) == pytest.approx(expected,
+                                                                                     abs=1e-13)
+    # a mesh the whole group keeps is returned as it is
+    gamma = irreducible_kpoints((4, 4, 4), 0.0, find_symmetry(cr.diamond(10.26, "Si")))
+    assert join_by_full_symmetry(gamma, find_symmetry(cr.diamond(10.26, "Si"))) is gamma
