@@ -94,7 +94,7 @@ def _project_out(basis: np.ndarray, block: np.ndarray, clock, total=_same) -> No
     """
     coef = total(clock(_overlap, basis, block))
     out = clock(zgemm, -1.0, basis.T, coef, 1.0, block.T, 0, 0, 1)
-    if not np.shares_memory(out, block):    # f2py had to copy (non-contiguous block)
+    if not np.may_share_memory(out, block):    # f2py had to copy (non-contiguous block)
         block.T[...] = out
 
 
@@ -231,7 +231,7 @@ def davidson(apply_h: ApplyOperator, precondition: Preconditioner, guess: np.nda
         k = q.shape[0]
         if k == 0:
             break
-        if not np.shares_memory(q, t):     # the Loewdin fallback returns new rows
+        if not np.may_share_memory(q, t):     # the Loewdin fallback returns new rows
             v[m:m + k] = q
         t = v[m:m + k]
         ht = hv[m:m + k]

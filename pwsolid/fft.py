@@ -95,7 +95,12 @@ class FFTGrid:
         plan = self._plans.get(nb)
         if plan is None:
             buf = pyfftw.empty_aligned((nb, *self.shape), dtype="complex128")
-            flags = ("FFTW_MEASURE", "FFTW_DESTROY_INPUT")
+            # Whole fields (densities, potentials) are transformed on every MPI process
+            # alike and must give the same bits there: FFTW_MEASURE picks its algorithm
+            # by timing, which can differ between processes on a busy machine, so these
+            # plans are estimated; UNALIGNED keeps them from taking up measured wisdom
+            # of the batched plans. They are a few transforms per SCF iteration.
+            flags = ("FFTW_ESTIMATE", "FFTW_UNALIGNED", "FFTW_DESTROY_INPUT")
             fwd = pyfftw.FFTW(buf, buf, axes=(1, 2, 3), direction="FFTW_FORWARD",
                               flags=flags, threads=self.threads)
             bwd = pyfftw.FFTW(buf, buf, axes=(1, 2, 3), direction="FFTW_BACKWARD",
