@@ -10,7 +10,7 @@ LAYERS = {
     0: {"units", "errors", "resources", "_version", "progress", "safe_files"},
     1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos"},
     2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath"},
-    3: {"pseudo", "electrostatics", "hamiltonian", "energies", "xc_grid"},
+    3: {"pseudo", "electrostatics", "hamiltonian", "energies", "xc_grid"},  # pseudo/atom.py too
     4: {"scf", "parallel", "settings", "checkpoint"},
     5: {"workflows"},
     6: {"config", "results", "plots", "cli", "commands"},
