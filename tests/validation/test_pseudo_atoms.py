@@ -139,11 +139,7 @@ def _pseudo_atom(name):
 
 
 LIGHT_FILES = [n for n in SEPARABLE_FILES if Z_NUCLEUS[n.split("-")[0]] <= 14]
-BROKEN_FILES = {"Ge-hartwigsen-goedecker-hutter.toml": (
-    "Ge pseudo-atom 4s -0.450485, 4p -0.142121 Ha against the scalar-relativistic "
-    "all-electron -0.439010, -0.148896 (PZ81): 11.5 and 6.8 mHa off where Ga and As "
-    "agree to 0.2 mHa; a recalled parameter is wrong (h22 of the p channel at -0.62706 "
-    "instead of -0.459604 would fit both levels to 3e-5 Ha)")}
+BROKEN_FILES: dict = {}    # file name -> reason (strict xfail); none at present
 
 
 @pytest.mark.parametrize("name", LIGHT_FILES)
