@@ -226,9 +226,9 @@ def _summary(doc: dict) -> str:
     occ = doc["occupation_scheme"]
     lines.append("")
     if b is None:
-        lines.append(f"  free energy F = E - sigma S{e['free_energy_Ha']:.8f} Ha")
-        lines.append(f"  zero-width estimate        {e['zero_width_estimate_Ha']:.8f} Ha")
-        lines.append(f"  Fermi level                {occ['fermi_level_eV']:.4f} eV "
+        lines.append(f"  {'free energy F = E - sigma S':<29}{e['free_energy_Ha']:.8f} Ha")
+        lines.append(f"  {'zero-width estimate':<29}{e['zero_width_estimate_Ha']:.8f} Ha")
+        lines.append(f"  {'Fermi level':<29}{occ['fermi_level_eV']:.4f} eV "
                      f"({occ['scheme']} smearing, width {occ['width_eV']:.3f} eV)")
     else:
         lines.append(f"  highest occupied level   {b['highest_occupied_eV']:.4f} eV "
