@@ -22,6 +22,7 @@ __all__ = [
     "BOHR_ANGSTROM",
     "HA_PER_BOHR3_GPA",
     "KELVIN_HA",
+    "SPEED_OF_LIGHT",
     "ENERGY_UNITS",
     "INVERSE_LENGTH_UNITS",
     "LENGTH_UNITS",
@@ -40,6 +41,8 @@ HA_PER_BOHR3_GPA: float = (_c.physical_constants["Hartree energy"][0]
                            / _c.physical_constants["Bohr radius"][0] ** 3 / 1e9)
 #: Boltzmann constant times 1 K, in hartree.
 KELVIN_HA: float = _c.k / _c.physical_constants["Hartree energy"][0]
+#: Speed of light in atomic units, 1/alpha (about 137.036).
+SPEED_OF_LIGHT: float = 1.0 / _c.fine_structure
 
 #: Accepted energy unit names and their size in hartree.
 ENERGY_UNITS: dict[str, float] = {

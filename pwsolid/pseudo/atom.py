@@ -30,7 +30,6 @@ from dataclasses import dataclass, field
 from typing import Callable, Mapping, Sequence
 
 import numpy as np
-from scipy import constants as _constants
 from scipy.interpolate import BSpline
 from scipy.linalg import eigh
 from scipy.optimize import brentq
@@ -38,6 +37,7 @@ from threadpoolctl import threadpool_limits
 
 from ..errors import ConvergenceWarning, InputError
 from ..mixing import PulayMixer
+from ..units import SPEED_OF_LIGHT
 from ..xc import get_functional
 from .separable import ProjectorChannel, projector_radial_real
 
@@ -47,8 +47,8 @@ __all__ = ["RadialBasis", "radial_basis", "PseudoAtom", "parse_configuration",
 
 _L_LETTERS = "spdf"
 
-#: Speed of light in atomic units, 1/alpha (CODATA 2018 through scipy.constants).
-C_LIGHT: float = 1.0 / _constants.fine_structure
+#: Speed of light in atomic units, 1/alpha (CODATA through scipy.constants).
+C_LIGHT: float = SPEED_OF_LIGHT
 
 #: Valence ground configurations of the neutral atoms (common practice; the
 #: filled d shell of Ga, Ge and As belongs to the core of their pseudopotentials).
