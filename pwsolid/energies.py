@@ -20,7 +20,7 @@ import numpy as np
 
 from .units import HARTREE_EV
 
-__all__ = ["EnergyTerms", "kinetic_energy", "local_energy", "xc_energy", "nonlocal_energy"]
+__all__ = ["EnergyTerms", "kinetic_energy", "local_energy", "nonlocal_energy"]
 
 
 @dataclass(frozen=True)
@@ -64,11 +64,6 @@ def local_energy(v_loc_g: np.ndarray, density_g: np.ndarray, volume: float) -> t
     prod = np.real(np.conj(v_loc_g) * density_g)
     g0 = float(prod.flat[0]) * volume
     return float(prod.sum()) * volume - g0, g0
-
-
-def xc_energy(density_r: np.ndarray, eps_xc: np.ndarray, volume: float) -> float:
-    """int n eps_xc d^3r as a grid sum."""
-    return float(np.mean(density_r * eps_xc)) * volume
 
 
 def nonlocal_energy(coefficients: list[np.ndarray], operators: list, occupations: np.ndarray,

@@ -266,19 +266,23 @@ def join_by_full_symmetry(kset: KPointSet, operations: SymmetryOperations) -> KP
     """
     if operations is None or kset.operations.n_ops >= operations.n_ops:
         return kset
-    rots = np.asarray(operations.rotations, dtype=float)
+    # Mesh points and all their images are multiples of 1/L per axis: integer labels.
+    period = 2 * int(np.lcm.reduce(np.asarray(kset.mesh, dtype=np.int64)))
     k = np.asarray(kset.fractional, float)
-    images = np.einsum("ka,rab->rkb", k, rots)                      # (n_ops, n_k, 3)
+    images = np.einsum("ka,rab->rkb", np.rint(k * period).astype(np.int64),
+                       np.asarray(operations.rotations, dtype=np.int64))  # (n_ops, n_k, 3)
     if kset.time_reversal:
         images = np.concatenate([images, -images])
-    # same[i, j]: some image of point i equals point j modulo a reciprocal lattice vector
-    diff = images[:, :, None, :] - k[None, None, :, :]
-    same = np.any(np.all(np.abs(diff - np.rint(diff)) < 1e-9, axis=-1), axis=0)
-    first = np.argmax(same | np.eye(len(k), dtype=bool), axis=1)     # smallest equivalent
-    keep = np.flatnonzero(first == np.arange(len(k)))
-    weights = np.zeros(len(k))
-    np.add.at(weights, first, kset.weights)
-    frac, w = k[keep].copy(), weights[keep]
+    images %= period
+    keys = (images[..., 0] * period + images[..., 1]) * period + images[..., 2]
+    orbit = keys.min(axis=0)                        # the same for all points of one orbit
+    _, first, which = np.unique(orbit, return_index=True, return_inverse=True)
+    order = np.argsort(first)                       # keep the first point of each orbit
+    keep = first[order]
+    weights = np.zeros(len(first))
+    np.add.at(weights, which.ravel(), kset.weights)
+    weights = weights[order]
+    frac, w = k[keep].copy(), weights
     frac.setflags(write=False)
     w.setflags(write=False)
     return KPointSet(frac, w, kset.mesh, kset.shift, operations, kset.full_mesh_size,

@@ -402,15 +402,14 @@ def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
     fresh = any(state.wavefunctions[j] is None or state.wavefunctions[j].shape[0] != nb
                 for j in setup.owned)
     for j in setup.owned:
+        spin, ik = setup.channel(j)
         w = state.wavefunctions[j]
-        if w is not None and w.shape[0] < nb:      # bands added by a remedy
-            state.wavefunctions[j] = _with_more_bands(w, setup.bases[setup.channel(j)[1]], nb)
-    for j in setup.owned:
-        if state.wavefunctions[j] is None:
-            spin, ik = setup.channel(j)
+        if w is None:
             v_eff_g = setup.fft.field_to_reciprocal(_channel_potential(v_eff, spin))
             state.wavefunctions[j] = _initial_guess(setup.bases[ik], v_eff_g, nb,
                                                     setup.grid_shape, *setup.nonlocal_ops[ik])
+        elif w.shape[0] < nb:                      # bands added by a remedy
+            state.wavefunctions[j] = _with_more_bands(w, setup.bases[ik], nb)
     # All bands converge together: converging only the charged ones and polishing the
     # empty ones at the end cost more SCF iterations than it saved (measured on silicon).
     first = fresh or (state.warm and state.iteration == 1)
@@ -739,26 +738,28 @@ def _stalled(history: list) -> bool:
 
 
 def _remedy(setup: SystemSetup, mixer: PulayMixer, step: int):
-    """The ``step``-th remedy for a stalled SCF: (new mixer, description) or None."""
+    """The ``step``-th remedy for a stalled SCF: (set-up, mixer, description) or None."""
     s = setup.settings
     if step == 0:
         new = PulayMixer(mixer.weight / 2, min(2 * s.mixing_history, 40),
                          preconditioner=mixer.preconditioner)
-        return new, (f"mixing weight {mixer.weight:g} -> {new.weight:g}, Pulay history "
+        return setup, new, (f"mixing weight {mixer.weight:g} -> {new.weight:g}, Pulay history "
                      f"{s.mixing_history} -> {min(2 * s.mixing_history, 40)}")
     if step == 1:
         q0 = s.screening_wavevector or thomas_fermi_wavevector(setup.n_electrons / setup.volume)
         new = PulayMixer(mixer.weight / 2, min(2 * s.mixing_history, 40),
                          preconditioner=_per_channel(kerker_preconditioner(setup.g2, q0),
                                                      setup.n_spin))
-        return new, f"mixing weight {mixer.weight:g} -> {new.weight:g} with Kerker preconditioning"
+        return (setup, new,
+                f"mixing weight {mixer.weight:g} -> {new.weight:g} with Kerker preconditioning")
     if step == 2:
         # A band cut at the top of the computed ones (a degenerate partner missing, or
         # a smearing tail) converges slowly in the eigensolver and keeps the density noisy.
         n_new = setup.n_bands + max(4, int(np.ceil(0.2 * setup.n_bands)))
         if n_new > min(b.size for b in setup.bases):
             return None
-        return mixer, f"bands {setup.n_bands} -> {n_new}", n_new
+        return (dataclasses.replace(setup, n_bands=n_new), mixer,
+                f"bands {setup.n_bands} -> {n_new}")
     return None
 
 
@@ -840,9 +841,7 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
         if _stalled(state.history[stall_base:]):
             fix = _remedy(setup, mixer, remedies)
             if fix is not None:
-                mixer, what = fix[:2]
-                if len(fix) > 2:
-                    setup = dataclasses.replace(setup, n_bands=fix[2])
+                setup, mixer, what = fix
                 remedies += 1
                 stall_base = len(state.history)
                 note = f"SCF stalled at iteration {state.iteration}; remedy {remedies}: {what}"
