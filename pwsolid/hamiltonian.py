@@ -16,7 +16,7 @@ import numpy as np
 from .basis import PlaneWaveSet, grid_g_vectors
 from .fft import FFTGrid
 
-__all__ = ["KPointHamiltonian", "local_potential", "structure_factors",
+__all__ = ["KPointHamiltonian", "local_potential", "core_density", "structure_factors",
            "kinetic_preconditioner"]
 
 
@@ -45,20 +45,42 @@ def local_potential(lattice: np.ndarray, fractional_positions: np.ndarray, speci
         (1/Omega) sum_atoms w_s(0), the finite non-Coulomb average (the Coulomb
         G = 0 part cancels against Hartree and Ewald in a neutral cell).
     """
+    return _species_sum(lattice, fractional_positions, species, grid_shape,
+                        lambda s, q: _with_g0(forms[s].form_factor(q), forms[s].g0_integral))
+
+
+def core_density(lattice: np.ndarray, fractional_positions: np.ndarray, species, cores: dict,
+                 grid_shape) -> np.ndarray | None:
+    """Fourier coefficients of the crystal's model core density, or None without one.
+
+    ``cores`` maps species to a :class:`pwsolid.pseudo.PartialCore` or None;
+    n_c(G) = (1/Omega) sum_s n_c,s(|G|) S_s(G), bohr^-3.
+    """
+    if not any(cores.get(s) is not None for s in species):
+        return None
+    return _species_sum(lattice, fractional_positions, species, grid_shape,
+                        lambda s, q: (cores[s].form_factor(q) if cores.get(s) is not None
+                                      else np.zeros_like(q)))
+
+
+def _with_g0(form_factor: np.ndarray, g0: float) -> np.ndarray:
+    form_factor[0, 0, 0] = g0
+    return form_factor
+
+
+def _species_sum(lattice, fractional_positions, species, grid_shape, factor) -> np.ndarray:
+    """(1/Omega) sum_s factor(s, |G|) S_s(G) on the FFT grid."""
     from .basis import grid_miller_indices
 
     volume = abs(np.linalg.det(lattice))
-    g = grid_g_vectors(lattice, grid_shape)
-    q = np.linalg.norm(g, axis=-1)
+    q = np.linalg.norm(grid_g_vectors(lattice, grid_shape), axis=-1)
     m = grid_miller_indices(grid_shape)
     species = list(species)
     pos = np.asarray(fractional_positions, float)
     v = np.zeros(tuple(grid_shape), dtype=complex)
     for s in dict.fromkeys(species):
         sel = [i for i, x in enumerate(species) if x == s]
-        ff = forms[s].form_factor(q)
-        ff[0, 0, 0] = forms[s].g0_integral
-        v += ff * structure_factors(pos[sel], m)
+        v += factor(s, q) * structure_factors(pos[sel], m)
     return v / volume
 
 

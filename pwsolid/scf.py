@@ -28,7 +28,7 @@ from .xc_grid import exchange_correlation_on_grid
 from .checkpoint import load_checkpoint, save_checkpoint
 from .errors import ConvergenceError, ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
-from .hamiltonian import KPointHamiltonian, kinetic_preconditioner, local_potential
+from .hamiltonian import KPointHamiltonian, core_density, kinetic_preconditioner, local_potential
 from .kpoints import KPointSet, irreducible_kpoints, join_by_full_symmetry
 from .mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
 from .parallel import (SerialCommunicator, distribute, fft_threads_for, single_threaded_blas,
@@ -107,6 +107,7 @@ class SystemSetup:
     owned: tuple = ()                                  # channel indices this process solves
     n_spin: int = 1
     g_vectors: np.ndarray | None = None               # Cartesian G on the grid, bohr^-1
+    core_density: np.ndarray | None = None            # model core density n_c(r) for E_xc, bohr^-3
 
     @property
     def grid_size(self) -> int:
@@ -188,6 +189,9 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
                              f"calculation on {tuple(grid)}", key="external_potential")
         v_loc_g = v_loc_g + fft.field_to_reciprocal(v_ext)
     v_loc_r = fft.field_to_real(v_loc_g).real
+    n_core_g = core_density(crystal.lattice, crystal.positions, crystal.species,
+                            {s: pp.partial_core for s, pp in pps.items()}, grid)
+    n_core = None if n_core_g is None else fft.field_to_real(n_core_g).real
     ewald = (ewald_energy(crystal.lattice, crystal.cartesian_positions,
                           [pps[s].valence for s in crystal.species]) if crystal.n_atoms else 0.0)
     symmetrize = None
@@ -198,7 +202,7 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
                        bases, g2, v_loc_g, v_loc_r, ewald, n_el, n_bands, symmetrize,
                        [_nonlocal(crystal, pps, b) for b in bases], comm,
                        tuple(distribute([b.size for b in bases] * n_spin, comm.size, comm.rank)),
-                       n_spin, g)
+                       n_spin, g, n_core)
 
 
 @dataclass
@@ -336,6 +340,11 @@ def _effective_potential(setup: SystemSetup, density: np.ndarray):
 
 
 def _xc_on_grid(setup: SystemSetup, density: np.ndarray):
+    """E_xc and V_xc of the valence density plus the model core density (if any)."""
+    if setup.core_density is not None:
+        # the core is unpolarised: half of it in each spin channel
+        density = density + (setup.core_density if density.ndim == 3
+                             else 0.5 * setup.core_density[None])
     return exchange_correlation_on_grid(setup.functional, density, setup.fft, setup.g_vectors)
 
 

@@ -2,6 +2,7 @@
 
 from .files import (Pseudopotential, bundled_pseudopotentials, default_pseudopotential_file,
                     load_pseudopotential, resolve_pseudopotential)
+from .core import PartialCore, fit_partial_core
 from .separable import SeparablePart, ProjectorChannel, nonlocal_operator
 from .atom import (VALENCE_CONFIGURATIONS, PseudoAtom, radial_basis, solve_pseudo_atom,
                    solve_radial_atom)
@@ -14,4 +15,5 @@ __all__ = [
     "AppelbaumHamann", "GaussianLocal", "EvanescentCore", "LOCAL_FORMS", "SeparablePart",
     "ProjectorChannel", "nonlocal_operator", "PseudoAtom", "solve_pseudo_atom",
     "solve_radial_atom", "radial_basis", "VALENCE_CONFIGURATIONS",
+    "PartialCore", "fit_partial_core",
 ]

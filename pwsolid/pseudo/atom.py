@@ -284,7 +284,8 @@ def solve_radial_atom(local_potential: Callable[[np.ndarray], np.ndarray],
                       *, functional="lda-pz81", interacting: bool = True,
                       basis: RadialBasis | None = None, tolerance: float = 1e-9,
                       max_iterations: int = 200, mixing_weight: float = 0.5,
-                      relativistic: bool = False) -> PseudoAtom:
+                      relativistic: bool = False,
+                      core_density: Callable[[np.ndarray], np.ndarray] | None = None) -> PseudoAtom:
     """Self-consistent spherical Kohn-Sham atom with a local and a separable potential.
 
     Parameters
@@ -309,6 +310,10 @@ def solve_radial_atom(local_potential: Callable[[np.ndarray], np.ndarray],
         approximation, p c^2/(2c^2 - V) p with V the whole local potential; meant
         for all-electron atoms (local_potential = -Z/r), to estimate the
         relativistic shifts of valence levels. No separable term is allowed.
+    core_density : callable r -> n_c(r), bohr^-3, optional
+        Model core density added to the valence density in exchange and
+        correlation only (nonlinear core correction, e.g. ``PartialCore.density``);
+        the ``xc`` energy is then E_xc[n + n_c].
 
     Returns
     -------
@@ -326,11 +331,12 @@ def solve_radial_atom(local_potential: Callable[[np.ndarray], np.ndarray],
     # the matrices are ~100 x 100: BLAS threads only contend for the cores
     with threadpool_limits(limits=1, user_api="blas"):
         return _solve(local_potential, channels, configuration, functional, interacting,
-                      basis, tolerance, max_iterations, mixing_weight, relativistic)
+                      basis, tolerance, max_iterations, mixing_weight, relativistic,
+                      core_density)
 
 
 def _solve(local_potential, channels, configuration, functional, interacting, basis,
-           tolerance, max_iterations, mixing_weight, relativistic) -> PseudoAtom:
+           tolerance, max_iterations, mixing_weight, relativistic, core_density) -> PseudoAtom:
     shells = parse_configuration(configuration)
     if relativistic and channels:
         raise InputError("the relativistic kinetic energy is for all-electron atoms: "
@@ -342,6 +348,7 @@ def _solve(local_potential, channels, configuration, functional, interacting, ba
                          value=xc.name)
     r, w = basis.points, basis.weights
     v_ion = np.asarray(local_potential(r), dtype=float)
+    n_core = np.zeros_like(r) if core_density is None else np.asarray(core_density(r), float)
     by_l: dict[int, list[tuple[int, float]]] = {}
     for (n, l), f in sorted(shells.items()):
         by_l.setdefault(l, []).append((n, f))
@@ -379,7 +386,7 @@ def _solve(local_potential, channels, configuration, functional, interacting, ba
         if xc is None:
             return np.zeros_like(r), np.zeros_like(r), np.zeros_like(r)
         v_h = radial_hartree_potential(basis, n)
-        e_xc, v_xc = xc.evaluate(n)
+        e_xc, v_xc = xc.evaluate(n + n_core)
         return v_h, v_xc, e_xc
 
     mixer = PulayMixer(weight=mixing_weight, history=8)
@@ -417,7 +424,7 @@ def _solve(local_potential, channels, configuration, functional, interacting, ba
     rho = 4 * math.pi * r * r * n
     energies = {"kinetic": float(kinetic), "local": float(w @ (rho * v_ion)),
                 "nonlocal": float(nonloc), "hartree": float(0.5 * w @ (rho * v_h)),
-                "xc": float(w @ (rho * e_xc))}
+                "xc": float(w @ (4 * math.pi * r * r * (n + n_core) * e_xc))}
     return PseudoAtom(
         eigenvalues={_label(*k): v for k, v in eps.items()},
         occupations={_label(*k): shells[k] for k in eps},
@@ -451,5 +458,6 @@ def solve_pseudo_atom(pseudo, configuration=None, *, functional="lda-pz81",
                          f"pseudopotential has valence {pseudo.valence:g} (the atom must be neutral)",
                          key="configuration", value=configuration)
     channels = pseudo.separable.channels if pseudo.separable is not None else ()
+    core = pseudo.partial_core.density if pseudo.partial_core is not None else None
     return solve_radial_atom(pseudo.local.real_space, channels, shells, functional=functional,
-                             basis=basis, tolerance=tolerance)
+                             basis=basis, tolerance=tolerance, core_density=core)

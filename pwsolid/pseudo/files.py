@@ -27,6 +27,7 @@ from ..resources import pseudopotential_dir
 from ..units import BOHR_ANGSTROM, ENERGY_UNITS, parse_quantity
 import numpy as np
 
+from .core import PartialCore
 from .local import LOCAL_FORMS, LocalForm
 from .separable import ProjectorChannel, SeparablePart, hgh_off_diagonal
 
@@ -65,6 +66,9 @@ class Pseudopotential:
         Cutoff (Ha) the file recommends, if any.
     separable : SeparablePart or None
         Nonlocal projectors, for the dual-space Gaussian form.
+    partial_core : PartialCore or None
+        Model core density added to the valence density in exchange and
+        correlation (nonlinear core correction), from the ``[partial_core]`` table.
     """
 
     element: str
@@ -76,6 +80,7 @@ class Pseudopotential:
     status: str = ""
     suggested_cutoff: float | None = None
     separable: SeparablePart | None = None
+    partial_core: PartialCore | None = None
 
     @property
     def is_nonlocal(self) -> bool:
@@ -123,7 +128,8 @@ def resolve_pseudopotential(element: str, name, base_dir: Path | None = None) ->
 
 
 def _parameter(entry, name: str, kind: str, source: str) -> float:
-    key = f"parameters.{name}"
+    # a bare name is one of [parameters]; a dotted or indexed name is a full key
+    key = name if ("." in name or "[" in name) else f"parameters.{name}"
     if not isinstance(entry, dict) or set(entry) != {"value", "unit"}:
         raise InputError("each parameter must be a table { value = number, unit = \"...\" }",
                          key=key, value=entry, source=source)
@@ -155,7 +161,7 @@ def load_pseudopotential(path) -> Pseudopotential:
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML: {exc}", source=src) from None
     allowed = {"element", "valence_charge", "form", "parameters", "source", "suggested_cutoff",
-               "projectors"}
+               "projectors", "partial_core"}
     for key in doc:
         if key not in allowed:
             raise InputError(f"unknown key; accepted keys: {', '.join(sorted(allowed))}",
@@ -194,10 +200,28 @@ def load_pseudopotential(path) -> Pseudopotential:
         cutoff = parse_quantity(cutoff, "energy", key="suggested_cutoff", source=src)
     source = doc.get("source", {})
     separable = _projectors(doc.get("projectors", []), src) if nonlocal_form else None
+    core = _partial_core(doc["partial_core"], src) if "partial_core" in doc else None
     return Pseudopotential(
         element=str(doc["element"]), valence=float(z), local=cls(valence=float(z), **values),
         form=doc["form"], source_file=path, reference=str(source.get("reference", "")),
-        status=str(source.get("status", "")), suggested_cutoff=cutoff, separable=separable)
+        status=str(source.get("status", "")), suggested_cutoff=cutoff, separable=separable,
+        partial_core=core)
+
+
+def _partial_core(entry, src: str) -> PartialCore:
+    """Read ``[partial_core]``: charge (electrons, a number) and radius (a length)."""
+    if not isinstance(entry, dict) or set(entry) != {"charge", "radius"}:
+        raise InputError("must be a table with charge = <electrons> and "
+                         "radius = { value = ..., unit = \"bohr\" }", key="partial_core",
+                         value=entry, source=src)
+    charge = entry["charge"]
+    if isinstance(charge, bool) or not isinstance(charge, (int, float)) or not charge > 0:
+        raise InputError("must be a positive number of electrons", key="partial_core.charge",
+                         value=charge, source=src)
+    radius = _parameter(entry["radius"], "partial_core.radius", "length", src)
+    if not radius > 0:
+        raise InputError("must be positive", key="partial_core.radius", value=radius, source=src)
+    return PartialCore(float(charge), radius)
 
 
 def _projectors(entries, src: str) -> SeparablePart:
