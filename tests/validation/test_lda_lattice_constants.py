@@ -88,9 +88,9 @@ def test_lda_lattice_constant_and_bulk_modulus(name):
 
 @pytest.mark.xfail(strict=True, reason=(
     "sodium with the 1998 one-electron pseudopotential (parameters from memory) comes out "
-    "near 3.98 angstrom, 1.6% below the all-electron window: without a nonlinear core "
-    "correction the 2p core's overlap with the 3s valence is missed (a known limitation of "
-    "valence-only sodium); strict, so this fails loudly once it is fixed"))
+    "near 3.98 angstrom, 1.6% below the all-electron window, a known limitation of "
+    "valence-only sodium; a partial core with refitted coefficients does not mend it "
+    "(README, Cautions); strict, so this fails loudly once it is fixed"))
 def test_sodium_lattice_constant():
     _check("Na")
 
