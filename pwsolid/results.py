@@ -91,7 +91,10 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
         "bands": setup.n_bands,
         "pseudopotentials": {
             s: {"file": str(pp.source_file), "form": pp.form, "valence": pp.valence,
-                "reference": pp.reference, "status": pp.status}
+                "reference": pp.reference, "status": pp.status,
+                "partial_core": (None if pp.partial_core is None else
+                                 {"charge": pp.partial_core.charge,
+                                  "radius_bohr": pp.partial_core.radius})}
             for s, pp in setup.pseudopotentials.items()},
         "settings": setup.settings.as_dict(),
         "input": input_echo,
