@@ -187,3 +187,44 @@ def test_pseudo_atom_total_energy_is_stationary_and_the_charge_neutral():
     charge = 4 * np.pi * np.sum(np.asarray(tight.points) ** 2 * tight.density
                                 * radial_basis().weights)
     assert abs(charge - 4.0) < 1e-8
+
+
+# -- transferability: excited and ionised atoms -----------------------------------------
+
+# One s -> p promotion and one cation (or half-ionised atom) per element.
+EXCITED = {"H": ["1s0.5"], "He": ["1s1"], "Li": ["2s0 2p1", "2s0.5"], "C": ["2s1 2p3", "2s2 2p1"],
+           "Na": ["3s0 3p1", "3s0.5"], "Mg": ["3s1 3p1", "3s1"], "Al": ["3s1 3p2", "3s2"],
+           "Si": ["3s1 3p3", "3s2 3p1"], "Ga": ["4s1 4p2", "4s2"], "Ge": ["4s1 4p3", "4s2 4p1"],
+           "As": ["4s1 4p4", "4s2 4p2"]}
+POOR_TRANSFER = {
+    "Na-hartwigsen-goedecker-hutter.toml": "3s 6.2 mHa off in 3s0 3p1, 3.0 in 3s0.5",
+    "Mg-hartwigsen-goedecker-hutter.toml": "3s 3.5 mHa off in the cation 3s1",
+}
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", [
+    pytest.param(n, marks=pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
+        "measured: " + POOR_TRANSFER[n] + "; valence-only potentials of the alkali and "
+        "alkaline-earth metals, whose diffuse valence shell sits over a polarisable 2p "
+        "core, transfer worst (common practice); sodium is also the one lattice "
+        "constant that misses its window"))) if n in POOR_TRANSFER else n
+    for n in SEPARABLE_FILES])
+def test_excited_and_ionised_pseudo_atoms_follow_the_all_electron_atom(name):
+    # Transferability: away from the reference configuration a norm-conserving
+    # pseudopotential follows the all-electron levels to about 1 mHa for a one-electron
+    # promotion or ionisation (common practice); 2 mHa here (measured: 1.5 mHa at most
+    # for every file but the two expected failures).
+    element = name.split("-")[0]
+    z = Z_NUCLEUS[element]
+    pp = load_pseudopotential(pseudopotential_dir() / name)
+    channels = pp.separable.channels if pp.separable is not None else ()
+    for configuration in EXCITED[element]:
+        pseudo = solve_radial_atom(pp.local.real_space, channels, configuration,
+                                   functional="lda-pz81")
+        reference = solve_radial_atom(lambda r: -z / r, (), f"{CORE[z]} {configuration}".strip(),
+                                      functional="lda-pz81", basis=_all_electron_basis(),
+                                      relativistic="hartwigsen" in name, tolerance=1e-8)
+        for label, e in pseudo.eigenvalues.items():
+            assert abs(e - reference.eigenvalues[label]) < 2e-3, (
+                configuration, label, e, reference.eigenvalues[label])
