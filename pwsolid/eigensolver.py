@@ -104,13 +104,17 @@ def _orthonormalize_in_place(block: np.ndarray, clock=None, total=_same) -> np.n
     Cholesky QR: S = U^H U from the Gram matrix (one Hermitian rank-k update),
     then the rows of U^-T B are orthonormal (one triangular solve); both run in
     BLAS and LAPACK on the block in place. When S is not numerically positive
-    definite, a symmetric (Loewdin) step keeps the well-conditioned directions.
+    definite (the factorisation fails, or a pivot is below 1e-6 of the largest), a
+    symmetric (Loewdin) step keeps the well-conditioned directions.
     ``total`` sums the Gram matrix over the processes holding other columns.
     """
     clock = clock or _Clock()
     gram = total(clock(zherk, 1.0, block.T, trans=2))       # upper triangle of S
     upper, info = clock(zpotrf, gram, lower=0, overwrite_a=1)
-    if info == 0:
+    # A dependent row can still pass the factorisation with a pivot at round-off level
+    # (sqrt(eps) of the largest); its row of U^-T B would then be noise, not a direction.
+    pivots = np.abs(np.diagonal(upper)) if info == 0 else None
+    if info == 0 and pivots.min() > 1e-6 * pivots.max():
         return clock(ztrsm, 1.0, upper, block.T, side=1, lower=0, overwrite_b=1).T
     s = total(clock(_overlap, block, block))
     w, u = clock(np.linalg.eigh, s)

@@ -912,7 +912,8 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
                 and state.residual < s.density_tolerance):
             converged = True
             break
-        if _stalled(state.history[stall_base:]):
+        # a remedy needs iterations to act: none is started on the last one
+        if state.iteration < s.max_iterations and _stalled(state.history[stall_base:]):
             fix = _remedy(setup, mixer, remedies)
             if fix is not None:
                 setup, mixer, what = fix

@@ -86,8 +86,10 @@ def test_a_stalled_scf_tries_remedies_then_says_what_to_change(silicon_small):
     # A density tolerance below round-off can never be met: the residual stalls, the
     # documented remedies are tried in turn, and the run ends unconverged with advice.
     # (At 1e-15 the first remedy alone gets there: a smaller weight and a longer
-    # history take the residual from a 1e-9 plateau to 1e-15.)
-    s = SETTINGS.replace(density_tolerance=1e-18, energy_tolerance=1e-18, max_iterations=50)
+    # history take the residual from a 1e-9 plateau to 1e-15.) Each remedy waits for a
+    # fresh stall of 12 iterations; the third came at iteration 50 in one run, so 60
+    # leaves it room to act.
+    s = SETTINGS.replace(density_tolerance=1e-18, energy_tolerance=1e-18, max_iterations=60)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", pwsolid.ConvergenceWarning)
         gs = pwsolid.ground_state(silicon_small, s)
