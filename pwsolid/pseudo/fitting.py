@@ -37,6 +37,7 @@ from scipy.optimize import least_squares
 from scipy.special import spherical_jn
 
 from ..errors import ConvergenceWarning, InputError
+from ..xc import get_functional
 from .atom import (RadialBasis, channel_matrices, nonlocal_matrix, radial_basis,
                    radial_hartree_potential, solve_radial_atom)
 from .local import GaussianLocal
@@ -82,6 +83,7 @@ def all_electron_targets(z: float, core: str, configurations: Sequence[str],
     fall on R, so the quadrature error is of the order of one point's weight times u^2;
     the same rule is used for the pseudo-atom, so it cancels to first order).
     """
+    basis = basis or radial_basis()
     out = []
     for configuration in configurations:
         atom = solve_radial_atom(lambda r: -z / r, (), f"{core} {configuration}".strip(),
@@ -92,8 +94,7 @@ def all_electron_targets(z: float, core: str, configurations: Sequence[str],
         charge = {}
         for k in valence:
             for radius in radii.get(_LETTERS.index(k[1]), ()):
-                charge[(k, float(radius))] = _outside(basis or radial_basis(), atom.orbitals[k],
-                                                      radius)
+                charge[(k, float(radius))] = _outside(basis, atom.orbitals[k], radius)
         out.append(AtomTarget(configuration, eig, charge))
     return out
 
@@ -156,8 +157,6 @@ def channel_spectrum(local: GaussianLocal, channels: Sequence[ProjectorChannel],
     basis = basis or radial_basis()
     atom = solve_radial_atom(local.real_space, channels, configuration, functional=functional,
                              basis=basis)
-    from ..xc import get_functional
-
     n = atom.density
     v_h = radial_hartree_potential(basis, n)
     v_xc = get_functional(functional).evaluate(n)[1]
