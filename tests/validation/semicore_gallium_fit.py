@@ -66,7 +66,7 @@ SUGGESTED_CUTOFF = 80.0     # Ha
 # tests/validation/lattice_constant_table.py)
 SOLID_NOTE = ("GaAs with As-hartwigsen-goedecker-hutter.toml (5-point Birch-Murnaghan, +-8%): "
               "a = 5.609 angstrom, B = 73.6 GPa\n# at 80 Ha, 2^3 mesh (5.610, 73.1 at 100 Ha; "
-              "5.602, 73.9 at 80 Ha, 4^3), in the all-electron\n# LDA window 5.60-5.62 "
+              "5.602, 73.9 at 80 Ha, 4^3; 5.602, 74.5 with 7 points\n# over +-4%), in the all-electron LDA window 5.60-5.62 "
               "angstrom (recalled from memory); below about 80 Ha the energy-volume curve is too rough to fit.")
 
 
