@@ -43,7 +43,8 @@ from .separable import ProjectorChannel, projector_radial_real
 
 __all__ = ["RadialBasis", "radial_basis", "PseudoAtom", "parse_configuration",
            "channel_matrices", "nonlocal_matrix", "radial_hartree_potential",
-           "solve_radial_atom", "solve_pseudo_atom", "VALENCE_CONFIGURATIONS"]
+           "solve_radial_atom", "solve_pseudo_atom", "VALENCE_CONFIGURATIONS",
+           "SEMICORE_SHELLS", "valence_configuration"]
 
 _L_LETTERS = "spdf"
 
@@ -51,12 +52,29 @@ _L_LETTERS = "spdf"
 C_LIGHT: float = SPEED_OF_LIGHT
 
 #: Valence ground configurations of the neutral atoms (common practice; the
-#: filled d shell of Ga, Ge and As belongs to the core of their pseudopotentials).
+#: filled d shell of Ga, Ge and As belongs to the core of most of their
+#: pseudopotentials, see :data:`SEMICORE_SHELLS` for those that keep it).
 VALENCE_CONFIGURATIONS: dict[str, str] = {
     "H": "1s1", "He": "1s2", "Li": "2s1", "C": "2s2 2p2", "Na": "3s1", "Mg": "3s2",
     "Al": "3s2 3p1", "Si": "3s2 3p2", "K": "4s1", "Ga": "4s2 4p1", "Ge": "4s2 4p2",
     "As": "4s2 4p3",
 }
+
+#: Filled semicore shells that a pseudopotential of the given (element, valence charge)
+#: keeps in the valence, in front of :data:`VALENCE_CONFIGURATIONS` (the 3d shell of the
+#: 13-electron gallium).
+SEMICORE_SHELLS: dict[tuple[str, int], str] = {("Ga", 13): "3d10"}
+
+
+def valence_configuration(element: str, valence: float | None = None) -> str:
+    """Neutral valence configuration of ``element`` for a pseudopotential of ``valence``
+    electrons: the semicore shells of :data:`SEMICORE_SHELLS`, if any, then
+    :data:`VALENCE_CONFIGURATIONS`; ``valence=None`` means no semicore shell."""
+    if element not in VALENCE_CONFIGURATIONS:
+        raise InputError("no default configuration for this element; give one",
+                         key="configuration", value=element)
+    semicore = "" if valence is None else SEMICORE_SHELLS.get((element, round(valence)), "")
+    return f"{semicore} {VALENCE_CONFIGURATIONS[element]}".strip()
 
 
 @dataclass(frozen=True, eq=False)
@@ -442,15 +460,12 @@ def solve_pseudo_atom(pseudo, configuration=None, *, functional="lda-pz81",
     pseudo : Pseudopotential
         Its ``local.real_space`` and ``separable`` channels are used.
     configuration : str or mapping, optional
-        Default: :data:`VALENCE_CONFIGURATIONS` of the element.
+        Default: :func:`valence_configuration` of the element and valence charge.
     functional, basis, tolerance
         As in :func:`solve_radial_atom`.
     """
     if configuration is None:
-        if pseudo.element not in VALENCE_CONFIGURATIONS:
-            raise InputError("no default configuration for this element; give one",
-                             key="configuration", value=pseudo.element)
-        configuration = VALENCE_CONFIGURATIONS[pseudo.element]
+        configuration = valence_configuration(pseudo.element, pseudo.valence)
     shells = parse_configuration(configuration)
     electrons = sum(shells.values())
     if abs(electrons - pseudo.valence) > 1e-9:
