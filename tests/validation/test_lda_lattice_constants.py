@@ -116,7 +116,7 @@ def test_sodium_lattice_constant():
     # 70 Ha and a 6^3 mesh are the cheapest settings measured in the window (4.055
     # angstrom, 9.6 GPa; 60 Ha gives 4.030 angstrom but 12 GPa from the basis-size noise
     # of the hard 2p shell); converged (80 Ha, 8^3): 4.062 angstrom, 8.9 GPa
-    # (lattice_constant_table.py). Warm-started scan: 75 s of CPU time on one core.
+    # (lattice_constant_table.py). Warm-started scan: about 80 s on one core (measured).
     _check("Na", warm_start=True)
 
 
