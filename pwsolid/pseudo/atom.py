@@ -62,8 +62,8 @@ VALENCE_CONFIGURATIONS: dict[str, str] = {
 
 #: Filled semicore shells that a pseudopotential of the given (element, valence charge)
 #: keeps in the valence, in front of :data:`VALENCE_CONFIGURATIONS` (the 3d shell of the
-#: 13-electron gallium).
-SEMICORE_SHELLS: dict[tuple[str, int], str] = {("Ga", 13): "3d10"}
+#: 13-electron gallium, the 2s and 2p shells of the nine-electron sodium).
+SEMICORE_SHELLS: dict[tuple[str, int], str] = {("Ga", 13): "3d10", ("Na", 9): "2s2 2p6"}
 
 
 def valence_configuration(element: str, valence: float | None = None) -> str:

@@ -13,7 +13,8 @@ sys.path.insert(0, str(Path(__file__).parent))
 
 import test_lda_lattice_constants as t  # noqa: E402
 
-CONVERGED = {"Si": (18.0, 8), "C": (45.0, 6), "Al": (18.0, 16), "Na": (14.0, 12),
+# Na: the nine-electron file; 70, 80 and 90 Ha agree to 0.0004 angstrom and 0.4 GPa (8^3)
+CONVERGED = {"Si": (18.0, 8), "C": (45.0, 6), "Al": (18.0, 16), "Na": (80.0, 8),
              "Ge": (20.0, 6), "GaAs": (80.0, 4)}
 
 if __name__ == "__main__":
@@ -25,7 +26,7 @@ if __name__ == "__main__":
         case = list(t.CASES[name])
         case[4], case[5] = cutoff, mesh
         t.CASES[name] = tuple(case)
-        a, b, _ = t.equilibrium(name, points=7, span=0.04)
+        a, b, _ = t.equilibrium(name, points=7, span=0.04, warm_start=(name == "Na"))
         lo, hi = case[7]
         print(f"| {name} | {cutoff:g} | {mesh}^3 | {a:.4f} | {lo}-{hi} | {b:.1f} | {case[8]:g} |",
               flush=True)

@@ -27,6 +27,7 @@ import pytest
 import pwsolid
 from pwsolid.eos import fit_equation_of_state
 from pwsolid.units import HA_PER_BOHR3_GPA
+from pwsolid.workflows.equation_of_state import scan_volumes
 
 pytestmark = pytest.mark.slow
 
@@ -39,8 +40,10 @@ CASES = {
           (3.53, 3.54), 465.0, 3.555),
     "Al": (pwsolid.face_centred_cubic, 3.98, "Al", "Al-hartwigsen-goedecker-hutter.toml",
            14.0, 10, "cold", (3.98, 3.99), 83.0, 4.019),
-    "Na": (pwsolid.body_centred_cubic, 4.00, "Na", "Na-hartwigsen-goedecker-hutter.toml",
-           10.0, 8, "cold", (4.05, 4.06), 9.0, 4.209),
+    # Na: the nine-electron file fitted by pwsolid (tests/validation/semicore_sodium_fit.py);
+    # its hard 2p shell needs 70 Ha (the cheapest setting in the window; see the test)
+    "Na": (pwsolid.body_centred_cubic, 4.05, "Na", "Na-semicore-fitted-hartwigsen-goedecker-hutter.toml",
+           70.0, 6, "cold", (4.05, 4.06), 9.0, 4.209),
     # Ge: cold smearing, since LDA germanium's gap closes at expanded volumes of the scan
     "Ge": (pwsolid.diamond, 5.63, "Ge", "Ge-hartwigsen-goedecker-hutter.toml", 16.0, 2, "cold",
            (5.62, 5.64), 72.0, 5.644),
@@ -54,17 +57,38 @@ CASES = {
 }
 
 
+#: further settings per pseudopotential file: nine-electron sodium has four flat, filled
+#: semicore bands under its one partly filled band, so two empty bands hold the smearing
+#: tail (the energy at 4.05 angstrom agrees with the default six to 1e-12 Ha, at 0.7 of
+#: the time)
+EXTRA_SETTINGS = {"Na-semicore-fitted-hartwigsen-goedecker-hutter.toml": {"empty_bands": 2}}
+
+
 def _settings(name):
     _, _, species, pp, cutoff, mesh, smearing, *_ = CASES[name]
     # one file name for an element, or a table {element: file} for a compound
     return pwsolid.GroundStateSettings(
         cutoff=cutoff, kpoint_mesh=(mesh,) * 3, smearing=smearing, smearing_width=0.01,
-        pseudopotentials=pp if isinstance(pp, dict) else {species: pp})
+        pseudopotentials=pp if isinstance(pp, dict) else {species: pp},
+        **(EXTRA_SETTINGS.get(pp, {}) if isinstance(pp, str) else {}))
 
 
-def equilibrium(name, points=5, span=0.08):
+def equilibrium(name, points=5, span=0.08, warm_start=False):
+    """(a0 in angstrom, B0 in GPa, Birch-Murnaghan fit) of a scan over V_in (1 +- span).
+
+    With ``warm_start`` the same volumes go through
+    :func:`pwsolid.workflows.equation_of_state.scan_volumes`, which starts each point from
+    its neighbour's density and orbitals (the energies agree to the SCF tolerance).
+    """
     builder, a0, species, *_ = CASES[name]
     settings = _settings(name)
+    ref_volume = builder(pwsolid.angstrom(a0), species).volume
+    if warm_start:
+        scan = scan_volumes(builder(pwsolid.angstrom(a0), species), settings,
+                            volume_range=span, n_points=points, max_extensions=0)
+        assert all(p.converged for p in scan.points)
+        fit = scan.fits["birch-murnaghan"]
+        return a0 * (fit.v0 / ref_volume) ** (1 / 3), fit.b0 * HA_PER_BOHR3_GPA, fit
     volumes, energies = [], []
     for f in np.linspace(1 - span, 1 + span, points) ** (1 / 3):
         crystal = builder(pwsolid.angstrom(a0 * f), species)
@@ -73,12 +97,11 @@ def equilibrium(name, points=5, span=0.08):
         volumes.append(crystal.volume)
         energies.append(gs.zero_width_energy)
     fit = fit_equation_of_state(np.array(volumes), np.array(energies), "birch-murnaghan")
-    ref_volume = builder(pwsolid.angstrom(a0), species).volume
     return a0 * (fit.v0 / ref_volume) ** (1 / 3), fit.b0 * HA_PER_BOHR3_GPA, fit
 
 
-def _check(name):
-    a, b, _ = equilibrium(name)
+def _check(name, warm_start=False):
+    a, b, _ = equilibrium(name, warm_start=warm_start)
     lo, hi = CASES[name][7]
     assert 0.99 * lo < a < 1.01 * hi, (name, a)
     assert abs(b / CASES[name][8] - 1) < 0.10, (name, b)
@@ -90,13 +113,15 @@ def test_lda_lattice_constant_and_bulk_modulus(name):
     _check(name)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "sodium with the 1998 one-electron pseudopotential (parameters from memory) comes out "
-    "near 3.98 angstrom, 1.6% below the all-electron window, a known limitation of "
-    "valence-only sodium; a partial core with refitted coefficients does not mend it "
-    "(README, Cautions); strict, so this fails loudly once it is fixed"))
 def test_sodium_lattice_constant():
-    _check("Na")
+    # The one-electron 1998 file (Na-hartwigsen-goedecker-hutter.toml) gives 3.985 angstrom,
+    # 1.6% short, as valence-only sodium is known to (core-valence exchange-correlation
+    # is nonlinear); the nine-electron file keeps the 2s and 2p shells in the valence.
+    # 70 Ha and a 6^3 mesh are the cheapest settings measured in the window (4.055
+    # angstrom, 9.6 GPa; 60 Ha gives 4.030 angstrom but 12 GPa from the basis-size noise
+    # of the hard 2p shell); converged (80 Ha, 8^3): 4.062 angstrom, 8.9 GPa
+    # (lattice_constant_table.py). Warm-started scan: about 80 s on one core (measured).
+    _check("Na", warm_start=True)
 
 
 @pytest.mark.parametrize("name, a_exp, b_exp", [("Si", 5.431, 98.0), ("Al", 4.050, 76.0)])

@@ -141,7 +141,23 @@ def test_recalled_values_our_all_electron_atom_does_not_reproduce(element, label
 
 # -- the bundled pseudopotentials -----------------------------------------------------
 
+def _valence(name):
+    return load_pseudopotential(pseudopotential_dir() / name).valence
+
+
+def _semicore(name):
+    """Shells below the chemical valence that the pseudo-atom of ``name`` keeps."""
+    return SEMICORE_SHELLS.get((name.split("-")[0], round(_valence(name))), "")
+
+
+def _relativistic(name):
+    # the 1998 sets and our own fits (named after the 1998 form) are fitted to
+    # scalar-relativistic atoms
+    return "hartwigsen" in name
+
+
 def _pseudo_atom(name):
+    # the neutral configuration, with the file's semicore shells (SEMICORE_SHELLS)
     return solve_pseudo_atom(load_pseudopotential(pseudopotential_dir() / name))
 
 
@@ -175,10 +191,8 @@ def test_pseudo_atom_against_the_all_electron_atom_in_the_same_functional(name):
     # the 1998 sets the regular approximation against the fully relativistic atom with
     # spin-orbit averaged p levels), measured below 0.4 mHa for every file that passes.
     element = name.split("-")[0]
-    relativistic = "hartwigsen" in name
-    valence = load_pseudopotential(pseudopotential_dir() / name).valence
     pseudo = _pseudo_atom(name)
-    reference = _all_electron(element, "lda-pz81", relativistic, valence)
+    reference = _all_electron(element, "lda-pz81", _relativistic(name), _valence(name))
     for label, e in pseudo.eigenvalues.items():
         assert abs(e - reference.eigenvalues[label]) < 1e-3, (
             label, e, reference.eigenvalues[label])
@@ -205,6 +219,11 @@ EXCITED = {"H": ["1s0.5"], "He": ["1s1"], "Li": ["2s0 2p1", "2s0.5"], "C": ["2s1
            "Na": ["3s0 3p1", "3s0.5"], "Mg": ["3s1 3p1", "3s1"], "Al": ["3s1 3p2", "3s2"],
            "Si": ["3s1 3p3", "3s2 3p1"], "Ga": ["4s1 4p2", "4s2"], "Ge": ["4s1 4p3", "4s2 4p1"],
            "As": ["4s1 4p4", "4s2 4p2"]}
+# Files with semicore shells: one more, unfitted valence configuration (full valence
+# notation). A 2p -> 3s core excitation (2s2 2p5 3s2) is not checked here: it moves the
+# semicore levels by about 0.5 Ha and the fitted file follows it to 3.8 mHa (printed by
+# tests/validation/semicore_sodium_fit.py).
+SEMICORE_EXCITED = {"Na-semicore-fitted-hartwigsen-goedecker-hutter.toml": ["2s2 2p6 3s0.5 3p0.5"]}
 POOR_TRANSFER = {
     "Na-hartwigsen-goedecker-hutter.toml": "3s 6.2 mHa off in 3s0 3p1, 3.0 in 3s0.5",
     "Mg-hartwigsen-goedecker-hutter.toml": "3s 3.5 mHa off in the cation 3s1",
@@ -216,8 +235,9 @@ POOR_TRANSFER = {
     pytest.param(n, marks=pytest.mark.xfail(strict=True, raises=AssertionError, reason=(
         "measured: " + POOR_TRANSFER[n] + "; valence-only potentials of the alkali and "
         "alkaline-earth metals, whose diffuse valence shell sits over a polarisable 2p "
-        "core, transfer worst (common practice); sodium is also the one lattice "
-        "constant that misses its window"))) if n in POOR_TRANSFER else n
+        "core, transfer worst (common practice); one-electron sodium is also 1.6% short "
+        "in the solid, where the nine-electron Na-semicore-fitted-hartwigsen-goedecker-hutter.toml passes both")))
+    if n in POOR_TRANSFER else n
     for n in SEPARABLE_FILES])
 def test_excited_and_ionised_pseudo_atoms_follow_the_all_electron_atom(name):
     # Transferability: away from the reference configuration a norm-conserving
@@ -228,14 +248,15 @@ def test_excited_and_ionised_pseudo_atoms_follow_the_all_electron_atom(name):
     z = Z_NUCLEUS[element]
     pp = load_pseudopotential(pseudopotential_dir() / name)
     channels = pp.separable.channels if pp.separable is not None else ()
-    semicore = SEMICORE_SHELLS.get((element, round(pp.valence)), "")
-    for configuration in (f"{semicore} {c}".strip() for c in EXCITED[element]):
+    configurations = ([f"{_semicore(name)} {c}".strip() for c in EXCITED[element]]
+                      + SEMICORE_EXCITED.get(name, []))
+    for configuration in configurations:
         pseudo = solve_radial_atom(pp.local.real_space, channels, configuration,
                                    functional="lda-pz81")
         reference = solve_radial_atom(lambda r: -z / r, (),
                                       f"{_core(element, pp.valence)} {configuration}".strip(),
                                       functional="lda-pz81", basis=_all_electron_basis(),
-                                      relativistic="hartwigsen" in name, tolerance=1e-8)
+                                      relativistic=_relativistic(name), tolerance=1e-8)
         for label, e in pseudo.eigenvalues.items():
             assert abs(e - reference.eigenvalues[label]) < 2e-3, (
                 configuration, label, e, reference.eigenvalues[label])
@@ -299,3 +320,37 @@ def test_fit_recovers_a_perturbed_coefficient_from_its_own_atom():
     report = fit_separable_form(4, targets, start, ["h0_1"], basis=basis, max_iterations=20)
     assert abs(report.parameters["h0_1"] - params["h0_1"]) < 1e-4
     assert report.worst_eigenvalue_error < 1e-6 and report.worst_charge_error < 1e-6
+
+
+# -- ghost states of the files fitted by pwsolid -------------------------------------------
+
+@pytest.mark.slow
+@pytest.mark.parametrize("name", ["Na-semicore-fitted-hartwigsen-goedecker-hutter.toml"])
+def test_fitted_semicore_file_has_no_ghost_states(name):
+    # A separable potential can bind a spurious extra level in a channel (a ghost state;
+    # X. Gonze, R. Stumpf and M. Scheffler, Phys. Rev. B 44, 8503 (1991), from memory).
+    # Every level per l of the neutral atom, free and in a hard-walled sphere of 6 bohr
+    # (which turns the continuum into levels up to 1.6 Ha), is compared with the
+    # all-electron atom less its frozen shells: a ghost shifts the whole ladder by a
+    # level spacing (0.5-1 Ha here). Tolerances: 2 mHa for the free atom's levels; in the
+    # sphere 30 mHa, the scattering error of a pseudopotential at 1-1.5 Ha above its
+    # reference energies (measured: 24 mHa at most, for 5p).
+    element = name.split("-")[0]
+    z = Z_NUCLEUS[element]
+    pp = load_pseudopotential(pseudopotential_dir() / name)
+    levels = "4s0 5s0 3p0 4p0 5p0 3d0 4d0 5d0"
+    valence = f"{valence_configuration(element, pp.valence)} {levels}"
+    # the free atom in the all-electron grid's 50 bohr, so that its unbound levels match too
+    for box, tolerance in ((None, 2e-3), (6.0, 3e-2)):
+        basis = radial_basis(r_max=box or 50.0, intervals=110 if box is None else 70,
+                             first_step=1e-3)
+        ae_basis = (_all_electron_basis() if box is None
+                    else radial_basis(r_max=box, intervals=110, first_step=2e-4))
+        pseudo = solve_radial_atom(pp.local.real_space, pp.separable.channels, valence,
+                                   functional="lda-pz81", basis=basis)
+        reference = solve_radial_atom(lambda r: -z / r, (), f"{_core(element, pp.valence)} {valence}",
+                                      functional="lda-pz81", basis=ae_basis,
+                                      relativistic=True, tolerance=1e-8)
+        for label, e in pseudo.eigenvalues.items():
+            assert abs(e - reference.eigenvalues[label]) < tolerance, (
+                box, label, e, reference.eigenvalues[label])
