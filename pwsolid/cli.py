@@ -217,11 +217,12 @@ def _note_low_cutoff(run) -> None:
 
 def _summary(doc: dict) -> str:
     e = doc["energy"]
-    lines = ["", "Total energy and its terms", "-" * 52,
-             f"  {'term':<24}{'Ha':>13}{'eV':>15}"]
+    # widths hold the longest term name and energies of -9999 Ha (-272,000 eV) with a gap
+    lines = ["", "Total energy and its terms", "-" * 58,
+             f"  {'term':<25}{'Ha':>15}{'eV':>16}"]
     for name, value in e["terms_Ha"].items():
-        lines.append(f"  {name.replace('_', ' '):<24}{value:>13.8f}{value * HARTREE_EV:>15.6f}")
-    lines.append(f"  {'total':<24}{e['total_Ha']:>13.8f}{e['total_eV']:>15.6f}")
+        lines.append(f"  {name.replace('_', ' '):<25}{value:>15.8f}{value * HARTREE_EV:>16.6f}")
+    lines.append(f"  {'total':<25}{e['total_Ha']:>15.8f}{e['total_eV']:>16.6f}")
     b = doc["band_edges"]
     occ = doc["occupation_scheme"]
     lines.append("")
