@@ -113,7 +113,7 @@ def _orthonormalize_in_place(block: np.ndarray, clock=None, total=_same) -> np.n
     upper, info = clock(zpotrf, gram, lower=0, overwrite_a=1)
     # A dependent row can still pass the factorisation with a pivot at round-off level
     # (sqrt(eps) of the largest); its row of U^-T B would then be noise, not a direction.
-    pivots = np.abs(np.diagonal(upper)) if info == 0 else None
+    pivots = np.abs(np.diagonal(upper))
     if info == 0 and pivots.min() > 1e-6 * pivots.max():
         return clock(ztrsm, 1.0, upper, block.T, side=1, lower=0, overwrite_b=1).T
     s = total(clock(_overlap, block, block))

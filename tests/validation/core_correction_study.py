@@ -32,7 +32,7 @@ from scipy.optimize import least_squares
 sys.path.insert(0, str(Path(__file__).parent))
 
 import test_lda_lattice_constants as lattice  # noqa: E402
-from test_pseudo_atoms import CORE, Z_NUCLEUS, _all_electron_basis  # noqa: E402
+from test_pseudo_atoms import CORE, Z_NUCLEUS, _all_electron_basis, reference_atom  # noqa: E402
 
 from pwsolid.pseudo import fit_partial_core, load_pseudopotential  # noqa: E402
 from pwsolid.pseudo.atom import solve_radial_atom  # noqa: E402
@@ -56,9 +56,7 @@ SCAN_CENTRES = {"Na": 4.00}
 
 
 def _all_electron(z, configuration):
-    return solve_radial_atom(lambda r: -z / r, (), f"{CORE[z]} {configuration}",
-                             functional="lda-pz81", basis=_all_electron_basis(),
-                             relativistic=True, tolerance=1e-9)
+    return reference_atom(z, f"{CORE[z]} {configuration}", tolerance=1e-9)
 
 
 def _core_density(atom, z):

@@ -50,7 +50,7 @@ from scipy.optimize import least_squares
 
 sys.path.insert(0, str(Path(__file__).parent))
 
-from test_pseudo_atoms import _all_electron_basis  # noqa: E402
+from test_pseudo_atoms import _all_electron_basis, reference_atom  # noqa: E402
 
 from pwsolid.pseudo import load_pseudopotential  # noqa: E402
 from pwsolid.pseudo.atom import radial_basis, solve_radial_atom  # noqa: E402
@@ -90,9 +90,7 @@ def pseudo_basis():
 
 
 def all_electron(configuration):
-    return solve_radial_atom(lambda r: -Z / r, (), f"{FROZEN_CORE} {configuration}",
-                             functional="lda-pz81", basis=_all_electron_basis(),
-                             relativistic=True, tolerance=1e-9)
+    return reference_atom(Z, f"{FROZEN_CORE} {configuration}", tolerance=1e-9)
 
 
 def parts(x):
@@ -144,9 +142,8 @@ def box_bases():
 
 
 def box_reference():
-    return solve_radial_atom(lambda r: -Z / r, (), f"{FROZEN_CORE} {BOX_CONFIGURATION}",
-                             functional="lda-pz81", basis=box_bases()[1], relativistic=True,
-                             tolerance=1e-9)
+    return reference_atom(Z, f"{FROZEN_CORE} {BOX_CONFIGURATION}", basis=box_bases()[1],
+                          tolerance=1e-9)
 
 
 def box_errors(x, reference):
@@ -225,9 +222,7 @@ def ghost_check(x, basis, box=None):
         basis = radial_basis(r_max=box, intervals=70, first_step=1e-3)
         ae_basis = radial_basis(r_max=box, intervals=110, first_step=2e-4)
     ps = pseudo_atom(local, channels, f"2s2 2p6 3s1 {extra}", basis)
-    ae = solve_radial_atom(lambda r: -Z / r, (), f"1s2 2s2 2p6 3s1 {extra}",
-                           functional="lda-pz81", basis=ae_basis,
-                           relativistic=True, tolerance=1e-9)
+    ae = reference_atom(Z, f"{FROZEN_CORE} 2s2 2p6 3s1 {extra}", basis=ae_basis, tolerance=1e-9)
     rows = [(k, ae.eigenvalues[k], ps.eigenvalues[k]) for k in ae.eigenvalues if k != "1s"]
     return sorted(rows, key=lambda t: ("spd".index(t[0][1]), int(t[0][0])))
 

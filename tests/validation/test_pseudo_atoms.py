@@ -59,12 +59,18 @@ def _core(element, valence=None):
     return " ".join(s for s in CORE[Z_NUCLEUS[element]].split() if s not in semicore)
 
 
-def _all_electron(element, functional, relativistic, valence=None):
-    z = Z_NUCLEUS[element]
-    configuration = f"{_core(element, valence)} {valence_configuration(element, valence)}".strip()
+def reference_atom(z, configuration, *, basis=None, relativistic=True,
+                   functional="lda-pz81", tolerance=1e-8):
+    """The all-electron atom (-Z/r, every shell listed), on the all-electron grid."""
     return solve_radial_atom(lambda r: -z / r, (), configuration, functional=functional,
-                             basis=_all_electron_basis(), relativistic=relativistic,
-                             tolerance=1e-8)
+                             basis=basis or _all_electron_basis(), relativistic=relativistic,
+                             tolerance=tolerance)
+
+
+def _all_electron(element, functional, relativistic, valence=None):
+    configuration = f"{_core(element, valence)} {valence_configuration(element, valence)}".strip()
+    return reference_atom(Z_NUCLEUS[element], configuration, relativistic=relativistic,
+                          functional=functional)
 
 
 # -- the solver against exact limits --------------------------------------------------
@@ -253,10 +259,8 @@ def test_excited_and_ionised_pseudo_atoms_follow_the_all_electron_atom(name):
     for configuration in configurations:
         pseudo = solve_radial_atom(pp.local.real_space, channels, configuration,
                                    functional="lda-pz81")
-        reference = solve_radial_atom(lambda r: -z / r, (),
-                                      f"{_core(element, pp.valence)} {configuration}".strip(),
-                                      functional="lda-pz81", basis=_all_electron_basis(),
-                                      relativistic=_relativistic(name), tolerance=1e-8)
+        reference = reference_atom(z, f"{_core(element, pp.valence)} {configuration}".strip(),
+                                   relativistic=_relativistic(name))
         for label, e in pseudo.eigenvalues.items():
             assert abs(e - reference.eigenvalues[label]) < 2e-3, (
                 configuration, label, e, reference.eigenvalues[label])
@@ -283,10 +287,7 @@ def test_no_ghost_state_below_or_between_the_valence_levels(name):
     configuration = f"{valence_configuration(element, pp.valence)} {NEXT_SHELLS[element]}"
     pseudo = solve_radial_atom(pp.local.real_space, pp.separable.channels, configuration,
                                basis=radial_basis(r_max=50.0))
-    reference = solve_radial_atom(lambda r: -Z_NUCLEUS[element] / r, (),
-                                  f"{_core(element, pp.valence)} {configuration}",
-                                  basis=_all_electron_basis(), relativistic=True,
-                                  tolerance=1e-8)
+    reference = reference_atom(Z_NUCLEUS[element], f"{_core(element, pp.valence)} {configuration}")
     for label, e in pseudo.eigenvalues.items():
         assert abs(e - reference.eigenvalues[label]) < 1e-3, (label, e, reference.eigenvalues[label])
 
@@ -348,9 +349,7 @@ def test_fitted_semicore_file_has_no_ghost_states(name):
                     else radial_basis(r_max=box, intervals=110, first_step=2e-4))
         pseudo = solve_radial_atom(pp.local.real_space, pp.separable.channels, valence,
                                    functional="lda-pz81", basis=basis)
-        reference = solve_radial_atom(lambda r: -z / r, (), f"{_core(element, pp.valence)} {valence}",
-                                      functional="lda-pz81", basis=ae_basis,
-                                      relativistic=True, tolerance=1e-8)
+        reference = reference_atom(z, f"{_core(element, pp.valence)} {valence}", basis=ae_basis)
         for label, e in pseudo.eigenvalues.items():
             assert abs(e - reference.eigenvalues[label]) < tolerance, (
                 box, label, e, reference.eigenvalues[label])
