@@ -1,10 +1,10 @@
-"""Result documents (JSON) and density checkpoints (.npz) (layer 6).
+"""Result documents (JSON) (layer 6).
 
 The JSON schema is versioned by ``RESULT_SCHEMA`` and documented in the README.
 Files are written atomically (temporary file in the same directory, fsync,
-rename) so that a crash never leaves half a document. Checkpoints are plain
-numpy archives with a format version and a SHA-256 checksum of their arrays;
-they are read with ``allow_pickle=False``.
+rename) so that a crash never leaves half a document. Density files belong to
+the one store (:mod:`pwsolid.store`); ``save_density`` and ``load_density`` are
+re-exported here.
 """
 
 from __future__ import annotations
@@ -16,15 +16,13 @@ from pathlib import Path
 import numpy as np
 
 from ._version import __version__
-from .safe_files import atomic_write_bytes, read_archive, write_archive
+from .safe_files import atomic_write_bytes
 from .scf import GroundState
+from .store import RESULT_SCHEMA, load_density, save_density
 from .units import BOHR_ANGSTROM, HARTREE_EV
 
-__all__ = ["RESULT_SCHEMA", "DENSITY_FORMAT", "ground_state_document", "write_json",
+__all__ = ["RESULT_SCHEMA", "ground_state_document", "write_json",
            "save_density", "load_density", "atomic_write_bytes"]
-
-RESULT_SCHEMA = "pwsolid.ground-state/1"
-DENSITY_FORMAT = "pwsolid.density/1"
 
 
 def _ev(x):
@@ -167,30 +165,3 @@ def _json_default(obj):
     if isinstance(obj, Path):
         return str(obj)
     raise TypeError(f"cannot store {type(obj).__name__} in JSON")
-
-
-def save_density(path, gs: GroundState) -> None:
-    """Save the self-consistent density with what identifies it (atomically)."""
-    arrays = {
-        "density": np.asarray(gs.density, float),
-        "lattice_bohr": gs.crystal.lattice,
-        "fractional_positions": gs.crystal.positions,
-        "cutoff_Ha": np.array(gs.settings.cutoff),
-        "fft_grid": np.array(gs.setup.grid_shape),
-        "n_electrons": np.array(gs.setup.n_electrons),
-    }
-    write_archive(path, DENSITY_FORMAT, arrays,
-                  {"species": list(gs.crystal.species),
-                   "functional": str(gs.settings.as_dict()["functional"])})
-
-
-def load_density(path) -> dict:
-    """Read a density checkpoint, verifying its format version and checksum.
-
-    Returns a dict with the arrays, ``species`` and ``functional``. Raises
-    InputError for a missing, corrupted or foreign file.
-    """
-    arrays, meta = read_archive(path, DENSITY_FORMAT, "density file")
-    arrays["species"] = meta.get("species", [])
-    arrays["functional"] = meta.get("functional")
-    return arrays

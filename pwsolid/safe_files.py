@@ -2,6 +2,9 @@
 
 * :func:`atomic_write_bytes`: temporary file in the target's directory, fsync,
   rename: a reader sees either the old file or the complete new one, never half.
+  The file gets the mode an ordinary ``open(path, "w")`` would give it (0666 less
+  the umask, 0644 typically), not the owner-only 0600 of a temporary file, so that
+  collaborators on a shared disk can read results.
 * :func:`write_archive` / :func:`read_archive`: numpy ``.npz`` archives carrying a
   JSON metadata record with a format name and a SHA-256 checksum of every array;
   reading never unpickles, and a corrupted or foreign file raises ``InputError``.
@@ -15,13 +18,25 @@ import io
 import json
 import os
 import tempfile
+import threading
 from pathlib import Path
 
 import numpy as np
 
 from .errors import InputError
 
-__all__ = ["atomic_write_bytes", "array_checksum", "write_archive", "read_archive"]
+__all__ = ["atomic_write_bytes", "array_checksum", "write_archive", "read_archive",
+           "new_file_mode"]
+
+_UMASK_LOCK = threading.Lock()
+
+
+def new_file_mode() -> int:
+    """Mode of a newly created ordinary file under the current umask (0666 & ~umask)."""
+    with _UMASK_LOCK:          # reading the umask means setting it: do it under a lock
+        mask = os.umask(0o022)
+        os.umask(mask)
+    return 0o666 & ~mask
 
 
 def atomic_write_bytes(path, data: bytes) -> None:
@@ -30,6 +45,7 @@ def atomic_write_bytes(path, data: bytes) -> None:
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
     try:
+        os.fchmod(fd, new_file_mode())      # mkstemp makes 0600 whatever the umask
         with os.fdopen(fd, "wb") as fh:
             fh.write(data)
             fh.flush()

@@ -25,7 +25,7 @@ from .eigensolver import davidson, dense_lowest_eigenpairs
 from .electrostatics import ewald_energy, hartree_energy, hartree_potential
 from .energies import EnergyTerms, kinetic_energy, local_energy, nonlocal_energy
 from .xc_grid import exchange_correlation_on_grid
-from .checkpoint import load_checkpoint, save_checkpoint
+from .store import load_checkpoint, save_checkpoint
 from .errors import ConvergenceError, ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, core_density, kinetic_preconditioner, local_potential
@@ -735,7 +735,8 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
                  setup: SystemSetup | None = None, checkpoint=None,
                  checkpoint_every: int = 1,
                  initial_wavefunctions: WavefunctionStart | None = None,
-                 start_residual: float | None = None) -> GroundState:
+                 start_residual: float | None = None,
+                 accept_mismatch: bool = False) -> GroundState:
     """Self-consistent Kohn-Sham ground state of a crystal.
 
     Parameters
@@ -754,7 +755,8 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
         Path of a checkpoint file. If it exists and belongs to this calculation the
         run continues from it; it is rewritten every ``checkpoint_every`` iterations
         (atomically), so an interrupted or killed run resumes with the same call.
-        A checkpoint of another calculation, or a corrupted one, raises InputError.
+        A checkpoint of another calculation, or a corrupted one, raises InputError
+        (see :mod:`pwsolid.store`).
     initial_wavefunctions
         Orbitals of a neighbouring calculation (``WavefunctionStart.of(result)``),
         e.g. the previous volume of a scan: carried over by Miller index at equal
@@ -765,6 +767,9 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
         it), e.g. of an extrapolation from earlier cells: the first eigensolver
         pass is then converged to about that instead of the default 1e-3, so a
         very good start is not spoilt by the error of its first orbitals.
+    accept_mismatch
+        Continue from a checkpoint of another calculation (e.g. another functional)
+        instead of refusing it; the differences are listed in the result's messages.
 
     Returns
     -------
@@ -789,7 +794,7 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
         try:
             return _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
                                  max(1, int(checkpoint_every)), initial_wavefunctions,
-                                 start_residual)
+                                 start_residual, accept_mismatch)
         except (FloatingPointError, np.linalg.LinAlgError) as exc:
             raise ConvergenceError(
                 f"the eigensolver broke down ({exc}); lower self_consistency.mixing_weight or "
@@ -846,9 +851,12 @@ def _spin_start(setup: SystemSetup, density: np.ndarray) -> np.ndarray:
     return np.stack([0.5 * (1 + m) * density, 0.5 * (1 - m) * density])
 
 
-def _resume(setup: SystemSetup, state: SCFState, mixer: PulayMixer, path) -> None:
-    """Continue from a checkpoint (refused with InputError if it is not this calculation's)."""
-    arrays, meta = load_checkpoint(path, setup)
+def _resume(setup: SystemSetup, state: SCFState, mixer: PulayMixer, path,
+            accept_mismatch: bool = False) -> tuple[str, ...]:
+    """Continue from a checkpoint (refused with InputError if it is not this calculation's,
+    unless ``accept_mismatch``); returns the accepted differences."""
+    record = load_checkpoint(path, setup, accept_mismatch=accept_mismatch)
+    arrays, meta = record.arrays, record.metadata
     state.density = arrays["density"]
     state.iteration = int(meta["iteration"])
     state.applications = int(meta.get("applications", 0))
@@ -864,11 +872,12 @@ def _resume(setup: SystemSetup, state: SCFState, mixer: PulayMixer, path) -> Non
             state.eigenvalues = arrays.get("eigenvalues")
     if state.history:
         state.residual = float(state.history[-1]["density_residual"])
+    return record.mismatches
 
 
 def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
                   checkpoint_every, initial_wavefunctions=None,
-                  start_residual=None) -> GroundState:
+                  start_residual=None, accept_mismatch=False) -> GroundState:
     t_start = time.perf_counter()
     setup = setup or prepare(crystal, settings)
     s = setup.settings
@@ -890,8 +899,10 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
     emit = log or (lambda line: None)
     messages = []
     if checkpoint is not None and Path(checkpoint).exists():
-        _resume(setup, state, mixer, checkpoint)
+        accepted = _resume(setup, state, mixer, checkpoint, accept_mismatch)
         messages.append(f"resumed from {checkpoint} after iteration {state.iteration}")
+        messages.extend(f"the checkpoint was made for another calculation, accepted on "
+                        f"request: {d}" for d in accepted)
         emit(f"resuming from {checkpoint} after iteration {state.iteration}")
     label = "free energy (Ha)" if s.smearing != "none" else "total energy (Ha)"
     emit(f"{'iter':>4} {label:>20} {'change (Ha)':>12} {'density res.':>12} "

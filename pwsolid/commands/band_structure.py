@@ -4,7 +4,9 @@
 density of a ground-state input: the density file named by ``--density-file`` or by
 the input (``output.density_file``, written by ``pwsolid ground-state``); when that
 file does not exist yet the ground state is run first and its density saved there.
-A density computed for another lattice, cutoff or FFT grid is refused.
+A density of another calculation (any field of :data:`pwsolid.store.IDENTITY_FIELDS`:
+lattice, atoms, cutoff, grid, functional, pseudopotential files, ...) is refused
+with the differing fields named, unless ``--accept-mismatch`` is given.
 
 ``empirical-bands`` computes the bands of Si, Ge or GaAs with the fixed empirical
 potential of Cohen & Bergstresser (no self-consistency).
@@ -23,6 +25,7 @@ be run did not converge (the files are still written).
 
 from __future__ import annotations
 
+import dataclasses
 import sys
 from pathlib import Path
 
@@ -32,7 +35,7 @@ from ..errors import EXIT_NOT_CONVERGED, EXIT_OK, InputError
 from ..units import HARTREE_EV, parse_quantity
 
 __all__ = ["register", "run", "run_empirical", "parse_int", "parse_formats", "parse_window",
-           "matching_density", "load_or_compute_density", "progress_for"]
+           "load_or_compute_density", "accept_mismatch_option", "progress_for"]
 
 _FORMATS = ("png", "svg", "pdf")
 
@@ -51,6 +54,7 @@ def register(subparsers) -> None:
     p.add_argument("input", help="ground-state input file (TOML)")
     p.add_argument("--density-file", metavar="FILE",
                    help="density checkpoint to use (default: the input's output.density_file)")
+    accept_mismatch_option(p)
     _path_options(p)
     p.add_argument("--with-dos", action="store_true",
                    help="add a density-of-states panel (tetrahedron method)")
@@ -73,6 +77,14 @@ def register(subparsers) -> None:
                         "40 (2 pi/a)^2, about 15 Ry for Si)")
     _output_options(e, "the current directory")
     e.set_defaults(handler=run_empirical)
+
+
+def accept_mismatch_option(p) -> None:
+    """``--accept-mismatch``: use a saved file made for another calculation, on purpose."""
+    p.add_argument("--accept-mismatch", action="store_true",
+                   help="use a saved file made for another calculation (other functional, "
+                        "pseudopotential, ...) instead of refusing it; the differences are "
+                        "printed and recorded in the result documents")
 
 
 def _path_options(p, bands_default=None) -> None:
@@ -165,66 +177,33 @@ def progress_for(args, label: str):
 
 # -- density ---------------------------------------------------------------------------
 
-def matching_density(stored: dict, setup, source: str) -> np.ndarray:
-    """The density array of a loaded checkpoint, if it belongs to ``setup``'s calculation.
+def load_or_compute_density(run, density_option, say, accept_mismatch: bool = False):
+    """(setup, density, ground state or None, not-converged message or None, accepted
+    differences).
 
-    Raises InputError naming what differs (lattice, atoms, cutoff, FFT grid).
+    Uses ``density_option`` or the input's density file, refused (InputError naming
+    each differing field) when it belongs to another calculation unless
+    ``accept_mismatch``; if the input's file does not exist, runs the ground state,
+    saves its density there and says so.
     """
-    crystal = setup.crystal
-    problems = []
-    lattice = np.asarray(stored["lattice_bohr"], float)
-    if lattice.shape != (3, 3) or not np.allclose(lattice, crystal.lattice, rtol=0, atol=1e-8):
-        problems.append("its lattice vectors differ from the input's")
-    positions = np.asarray(stored["fractional_positions"], float)
-    if (list(stored.get("species", [])) != list(crystal.species)
-            or positions.shape != np.shape(crystal.positions)
-            or not np.allclose(positions, crystal.positions, rtol=0, atol=1e-8)):
-        problems.append("its atoms differ from the input's")
-    cutoff = float(np.asarray(stored["cutoff_Ha"]))
-    if abs(cutoff - setup.settings.cutoff) > 1e-10 * max(1.0, cutoff):
-        problems.append(f"it was computed with a {cutoff:g} Ha cutoff, the input has "
-                        f"{setup.settings.cutoff:g} Ha")
-    grid = tuple(int(g) for g in np.asarray(stored["fft_grid"]).ravel())
-    if grid != tuple(setup.grid_shape):
-        problems.append(f"its FFT grid {'x'.join(map(str, grid))} is not the input's "
-                        f"{'x'.join(map(str, setup.grid_shape))}")
-    density = np.asarray(stored["density"], float)
-    if not problems and density.shape != tuple(setup.grid_shape):
-        problems.append("its density array does not fit the FFT grid")
-    if problems:
-        raise InputError("this density belongs to a different calculation: " + "; ".join(problems)
-                         + ". Run 'pwsolid ground-state' on the input again or pass the right "
-                         "--density-file", source=source)
-    return density
-
-
-def load_or_compute_density(run, density_option, say):
-    """(setup, density, ground state or None, not-converged message or None).
-
-    Uses ``density_option`` or the input's density file; if the input's file does not
-    exist, runs the ground state, saves its density there and says so.
-    """
-    from ..results import load_density, save_density
     from ..scf import ground_state, prepare
+    from ..store import load_density, save_density
 
-    if density_option:
-        path = Path(density_option)
-        stored = load_density(path)          # a missing file given explicitly is an error
+    path = Path(density_option) if density_option else Path(run.density_file)
+    if density_option or path.exists():    # a missing file given explicitly is an error
         setup = prepare(run.crystal, run.settings)
-        return setup, matching_density(stored, setup, str(path)), None, None
-    path = Path(run.density_file)
-    if path.exists():
-        stored = load_density(path)
-        setup = prepare(run.crystal, run.settings)
+        stored = load_density(path, setup, accept_mismatch=accept_mismatch)
         say(f"Using the density in {path}")
-        return setup, matching_density(stored, setup, str(path)), None, None
+        for line in stored["mismatches"]:
+            say(f"  accepted on request: {line}")
+        return setup, stored["density"], None, None, stored["mismatches"]
     say(f"No density file at {path}: running the ground state first")
     gs = ground_state(run.crystal, run.settings)
     save_density(path, gs)
     say(f"  ground state {'converged' if gs.converged else 'NOT converged'} in "
         f"{gs.iterations} iterations; density written to {path}")
     problem = None if gs.converged else (gs.messages[0] if gs.messages else "SCF not converged")
-    return gs.setup, gs.density, gs, problem
+    return gs.setup, gs.density, gs, problem, ()
 
 
 # -- commands --------------------------------------------------------------------------
@@ -248,17 +227,22 @@ def run(args) -> int:
 
     say = print
     say(run_input.title or Path(args.input).name)
-    setup, density, gs, problem = load_or_compute_density(run_input, args.density_file, say)
+    setup, density, gs, problem, accepted = load_or_compute_density(
+        run_input, args.density_file, say, args.accept_mismatch)
     source = gs if gs is not None else setup
     bs = band_structure(source, None if gs is not None else density, path,
                         n_points=n_points, n_bands=n_bands,
                         progress=progress_for(args, "bands"), title=run_input.title)
+    if accepted:
+        bs = dataclasses.replace(
+            bs, source=bs.source + " of another calculation, accepted on request",
+            extra={**bs.extra, "accepted_mismatches": list(accepted)})
     dos = None
     if args.with_dos:
         dos = density_of_states(source, None if gs is not None else density,
                                 mesh=(dos_mesh,) * 3, n_bands=n_bands,
                                 progress=progress_for(args, "DOS mesh"), title=run_input.title)
-    written = _write_outputs(bs, dos, stem, formats, window)
+    written = _write_outputs(bs, dos, stem, formats, window, accepted)
     print(_report(bs, dos))
     print("Written: " + ", ".join(str(p) for p in written))
     if problem:
@@ -292,7 +276,7 @@ def run_empirical(args) -> int:
     return EXIT_OK
 
 
-def _write_outputs(bs, dos, stem: Path, formats, window) -> list[Path]:
+def _write_outputs(bs, dos, stem: Path, formats, window, accepted=()) -> list[Path]:
     from ..plots.bands import BandStructurePlot
     from ..results import write_json
 
@@ -302,7 +286,8 @@ def _write_outputs(bs, dos, stem: Path, formats, window) -> list[Path]:
     written = [json_path, bs.to_csv(stem.with_name(stem.name + ".bands.csv"))]
     if dos is not None:
         dos_json = stem.with_name(stem.name + ".dos.json")
-        write_json(dos_json, dos.as_document())
+        write_json(dos_json, {**dos.as_document(),
+                              **({"accepted_mismatches": list(accepted)} if accepted else {})})
         written += [dos_json, dos.to_csv(stem.with_name(stem.name + ".dos.csv"))]
     try:
         plot = BandStructurePlot.from_result(bs, dos, window=window)

@@ -23,8 +23,8 @@ from pathlib import Path
 
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK, InputError
 from ..units import HARTREE_EV, parse_quantity
-from .band_structure import (load_or_compute_density, parse_formats, parse_int, parse_window,
-                             progress_for)
+from .band_structure import (accept_mismatch_option, load_or_compute_density, parse_formats,
+                             parse_int, parse_window, progress_for)
 
 __all__ = ["register", "run"]
 
@@ -45,6 +45,7 @@ def register(subparsers) -> None:
     p.add_argument("input", help="ground-state input file (TOML)")
     p.add_argument("--density-file", metavar="FILE",
                    help="density checkpoint to use (default: the input's output.density_file)")
+    accept_mismatch_option(p)
     p.add_argument("--mesh", default="12", metavar="N",
                    help="uniform mesh N x N x N, or N1,N2,N3 (default 12)")
     p.add_argument("--method", default="tetrahedron", metavar="NAME",
@@ -104,7 +105,8 @@ def run(args) -> int:
     stem = out / f"{Path(args.input).stem}.dos"
 
     print(run_input.title or Path(args.input).name)
-    setup, density, gs, problem = load_or_compute_density(run_input, args.density_file, print)
+    setup, density, gs, problem, accepted = load_or_compute_density(
+        run_input, args.density_file, print, args.accept_mismatch)
     source = gs if gs is not None else setup
     result = density_of_states(source, None if gs is not None else density, mesh=mesh,
                                method=method, width=width, n_bands=n_bands,
@@ -112,7 +114,8 @@ def run(args) -> int:
                                title=run_input.title)
     out.mkdir(parents=True, exist_ok=True)
     json_path = stem.with_name(stem.name + ".json")
-    write_json(json_path, result.as_document())
+    write_json(json_path, {**result.as_document(),
+                           **({"accepted_mismatches": list(accepted)} if accepted else {})})
     written = [json_path, result.to_csv(stem.with_name(stem.name + ".csv"))]
     try:
         plot = DensityOfStatesPlot.from_result(result, window=window)
