@@ -18,8 +18,7 @@ from typing import Callable
 import numpy as np
 
 from . import xc as _xc
-from .basis import (PlaneWaveSet, density_sphere, fft_grid_for_cutoff, grid_g_vectors, make_basis,
-                    transfer_coefficients)
+from .basis import PlaneWaveSet, density_sphere, fft_grid_for_cutoff, grid_g_vectors, make_basis
 from .crystal import Crystal
 from .eigensolver import davidson, dense_lowest_eigenpairs
 from .electrostatics import ewald_energy, hartree_energy, hartree_potential
@@ -40,6 +39,8 @@ from .pseudo import (Pseudopotential, default_pseudopotential_file, load_pseudop
                      resolve_pseudopotential)
 from .settings import GroundStateSettings
 from .symmetry import SymmetryOperations, find_symmetry, identity_only, make_density_symmetrizer
+from .warm_start import WavefunctionStart
+from .warm_start import start_wavefunctions as _start_wavefunctions
 
 __all__ = ["SystemSetup", "SCFState", "GroundState", "WavefunctionStart", "prepare", "scf_step",
            "ground_state",
@@ -222,84 +223,6 @@ class SCFState:
     applications: int = 0               # single-vector H applications so far
     history: list = field(default_factory=list)
     warm: bool = False                  # started from a neighbouring cell's density
-
-
-@dataclass(frozen=True, eq=False)
-class WavefunctionStart:
-    """Converged orbitals of one cell, kept to start a neighbouring cell's SCF.
-
-    ``coefficients[j]`` is channel j's ``(n_bands, n_pw)`` block (``None`` for a
-    channel another MPI process solved) on the plane waves ``miller[k]`` of
-    k-point k = j mod n_k; ``k_fractional`` ``(n_k, 3)`` names the k-points.
-    ``blend`` holds ``(weight, WavefunctionStart)`` pairs of further cells to
-    extrapolate with (see :meth:`extrapolated`).
-    """
-
-    k_fractional: np.ndarray
-    n_spin: int
-    miller: tuple
-    coefficients: tuple
-    blend: tuple = ()
-
-    @classmethod
-    def of(cls, result: "GroundState") -> "WavefunctionStart":
-        setup = result.setup
-        return cls(np.array([b.k_fractional for b in setup.bases]), setup.n_spin,
-                   tuple(b.miller for b in setup.bases), tuple(result.wavefunctions))
-
-    def extrapolated(self, pairs) -> "WavefunctionStart":
-        """These orbitals combined with others', ``(weight, start)`` pairs.
-
-        The start block is ``X + sum_i w_i (U_i X_i - X)``: each other block,
-        carried to the new plane waves, is first rotated onto this one (the
-        unitary U_i closest to their overlap), since orbitals of separate runs
-        differ by phases and by mixing within (near-)degenerate bands. Weights
-        of a Lagrange extrapolation in volume make the start exact to that order.
-        """
-        return dataclasses.replace(self, blend=tuple((float(w), start) for w, start in pairs))
-
-
-def _rotated_onto(block: np.ndarray, reference: np.ndarray) -> np.ndarray:
-    """``U block`` with the unitary U maximising Re tr(<reference|U block>) (orthogonal
-    Procrustes: U from the singular vectors of the overlap); rows are orbitals."""
-    u, _, vh = np.linalg.svd(block.conj() @ reference.T)
-    return (u @ vh).T @ block
-
-
-def _start_wavefunctions(setup: SystemSetup, start: WavefunctionStart) -> list | None:
-    """``start`` carried onto this set-up's bases, or None if the k-points differ.
-
-    Channels with nothing to carry (other process, other band count) stay ``None``
-    and get the usual fresh guess; a blended start whose partners lack a channel
-    uses the nearest cell's orbitals alone there.
-    """
-    ks = np.array([b.k_fractional for b in setup.bases])
-
-    def same_kpoints(s):
-        return (s.n_spin == setup.n_spin and ks.shape == s.k_fractional.shape
-                and np.allclose(ks, s.k_fractional, atol=1e-9))
-
-    if not same_kpoints(start):
-        return None
-    blend = [(w, other) for w, other in start.blend if same_kpoints(other)]
-    out = [None] * setup.n_channels
-    for j in setup.owned:
-        ik = setup.channel(j)[1]
-
-        def carried(s):
-            old = s.coefficients[j]
-            if old is None or old.shape[0] < setup.n_bands:
-                return None
-            return transfer_coefficients(s.miller[ik], old[:setup.n_bands], setup.bases[ik])
-
-        c = carried(start)
-        if c is None:
-            continue
-        others = [(w, carried(other)) for w, other in blend]
-        if all(o is not None for _, o in others):
-            c = c + sum(w * (_rotated_onto(o, c) - c) for w, o in others)
-        out[j] = c
-    return out
 
 
 def effective_potential(setup: SystemSetup, density: np.ndarray) -> np.ndarray:
