@@ -311,9 +311,8 @@ def _plain(obj):
 
 # --- header checks shared by both containers ------------------------------------------
 
-def _check_header(header, kind: RecordKind, fmt: str, fp: Fingerprint | None,
-                  accept_mismatch: bool, src: str) -> tuple[str, ...]:
-    """Kind, schema and fingerprint of a header; returns the accepted differences."""
+def _check_kind(header, kind: RecordKind, fmt: str, src: str) -> None:
+    """Refuse a header of another format, another kind or another schema version."""
     label = kind.label
     if not isinstance(header, Mapping) or header.get("format") != fmt:
         raise InputError(f"not a pwsolid {label} (no record header); give the right file",
@@ -333,14 +332,20 @@ def _check_header(header, kind: RecordKind, fmt: str, fp: Fingerprint | None,
         raise InputError(f"the {label} was written by an older pwsolid (schema {version}; this "
                          f"version reads schema {kind.version}): delete it and recompute",
                          source=src)
+
+
+def _check_fingerprint(header, kind: RecordKind, fp: Fingerprint | None,
+                       accept_mismatch: bool, src: str) -> tuple[str, ...]:
+    """The differences from ``fp``: refused unless ``accept_mismatch``."""
     if fp is None:
         return ()
     differ = fp.differences(header.get("fingerprint"))
     if differ and not accept_mismatch:
         raise InputError(
-            f"the {label} belongs to a different calculation (another crystal or with other "
-            f"settings): {'; '.join(differ)}. Delete it or give the right file, or accept the "
-            "difference explicitly (accept_mismatch=True, --accept-mismatch)", source=src)
+            f"the {kind.label} belongs to a different calculation (another crystal or with "
+            f"other settings): {'; '.join(differ)}. Delete it or give the right file, or "
+            "accept the difference explicitly (accept_mismatch=True, --accept-mismatch)",
+            source=src)
     return differ
 
 
@@ -426,12 +431,11 @@ def load_record(path, kind, fp: Fingerprint | None, *,
     except (KeyError, ValueError):
         raise InputError(f"not a pwsolid {kind.label} (no record header); give the right file",
                          source=src) from None
-    seal = header.pop("checksum", None) if isinstance(header, dict) else None
-    if isinstance(header, dict) and header.get("format") == _ARCHIVE_FORMAT:
-        if seal != _seal(arrays, header):
-            raise InputError(f"the {kind.label} is corrupted (checksum mismatch); delete it "
-                             "and recompute", source=src)
-    differ = _check_header(header, kind, _ARCHIVE_FORMAT, fp, accept_mismatch, src)
+    _check_kind(header, kind, _ARCHIVE_FORMAT, src)
+    if header.pop("checksum", None) != _seal(arrays, header):
+        raise InputError(f"the {kind.label} is corrupted (checksum mismatch); delete it "
+                         "and recompute", source=src)
+    differ = _check_fingerprint(header, kind, fp, accept_mismatch, src)
     return StoredRecord(kind.name, arrays, dict(header.get("metadata") or {}),
                         dict(header.get("fingerprint") or {}), differ, src)
 
@@ -499,18 +503,19 @@ class RecordLog:
         except IsADirectoryError:
             raise InputError(f"is a directory, not a {label}", source=src) from None
         except (OSError, UnicodeDecodeError, ValueError) as exc:
-            raise InputError(f"the {label} cannot be read ({type(exc).__name__}: {exc}); "
-                             "delete it to start afresh", source=src) from None
+            raise InputError(f"the {label} is truncated or corrupted, it cannot be read "
+                             f"({type(exc).__name__}: {exc}); delete it to start afresh",
+                             source=src) from None
         if not isinstance(doc, dict) or doc.get("format") != _LOG_FORMAT:
             raise InputError(f"not a {label} (expected a pwsolid record log); choose another "
                              "file name", source=src)
+        _check_kind(doc, self.kind, _LOG_FORMAT, src)
         entries = doc.pop(self.kind.entries_key, None)
-        seal = doc.pop("checksum", None)
-        if seal != hashlib.sha256(_canonical(doc)).hexdigest():
+        if doc.pop("checksum", None) != hashlib.sha256(_canonical(doc)).hexdigest():
             raise InputError(f"the {label} is corrupted (header checksum mismatch); delete it "
                              "to start afresh", source=src)
-        self.mismatches = _check_header(doc, self.kind, _LOG_FORMAT, self.fingerprint,
-                                        accept_mismatch, src)
+        self.mismatches = _check_fingerprint(doc, self.kind, self.fingerprint,
+                                             accept_mismatch, src)
         if not isinstance(entries, list):
             raise InputError(f"the {label} has no list of {self.kind.entries_key}", source=src)
         for i, entry in enumerate(entries):
