@@ -39,6 +39,9 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--checkpoint-file", help="SCF checkpoint for resuming (overrides the input)")
     run.add_argument("--fresh", action="store_true",
                      help="ignore an existing checkpoint and start from scratch")
+    run.add_argument("--accept-mismatch", action="store_true",
+                     help="continue from a checkpoint made for another calculation instead of "
+                          "refusing it; the differences are recorded in the result")
     run.add_argument("--overwrite", action="store_true",
                      help="replace a finished result document")
     run.add_argument("--quiet", action="store_true", help="print only the summary")
@@ -168,7 +171,8 @@ def _ground_state(args) -> int:
     try:
         gs = ground_state(c, run.settings, log=say,
                           checkpoint=files["checkpoint"] if args.writes_files else None,
-                          checkpoint_every=run.checkpoint_interval)
+                          checkpoint_every=run.checkpoint_interval,
+                          accept_mismatch=args.accept_mismatch)
     except KeyboardInterrupt:
         where = files["checkpoint"]
         hint = (f"the last completed iteration is saved in {where}; run the same command to "

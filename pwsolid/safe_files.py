@@ -5,17 +5,16 @@
   The file gets the mode an ordinary ``open(path, "w")`` would give it (0666 less
   the umask, 0644 typically), not the owner-only 0600 of a temporary file, so that
   collaborators on a shared disk can read results.
-* :func:`write_archive` / :func:`read_archive`: numpy ``.npz`` archives carrying a
-  JSON metadata record with a format name and a SHA-256 checksum of every array;
-  reading never unpickles, and a corrupted or foreign file raises ``InputError``.
+* :func:`array_checksum`: SHA-256 over names, dtypes, shapes and bytes of arrays.
+
+Saved records (checkpoints, densities, scan points, ...) are built on these by
+the one store, :mod:`pwsolid.store`.
 """
 
 from __future__ import annotations
 
 import contextlib
 import hashlib
-import io
-import json
 import os
 import tempfile
 import threading
@@ -23,10 +22,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
-
-__all__ = ["atomic_write_bytes", "array_checksum", "write_archive", "read_archive",
-           "new_file_mode"]
+__all__ = ["atomic_write_bytes", "array_checksum", "new_file_mode"]
 
 _UMASK_LOCK = threading.Lock()
 
@@ -67,36 +63,3 @@ def array_checksum(arrays: dict) -> str:
         h.update(str(a.shape).encode())
         h.update(a.tobytes())
     return h.hexdigest()
-
-
-def write_archive(path, fmt: str, arrays: dict, metadata: dict | None = None) -> None:
-    """Save arrays and a metadata record (format, checksum, ``metadata``) atomically."""
-    meta = dict(metadata or {})
-    meta["format"] = fmt
-    meta["checksum"] = array_checksum(arrays)
-    buf = io.BytesIO()
-    np.savez_compressed(buf, metadata=np.array(json.dumps(meta)), **arrays)
-    atomic_write_bytes(path, buf.getvalue())
-
-
-def read_archive(path, fmt: str, what: str = "file") -> tuple[dict, dict]:
-    """Read an archive written by :func:`write_archive`; returns ``(arrays, metadata)``."""
-    src = str(path)
-    try:
-        with open(path, "rb") as fh, np.load(fh, allow_pickle=False) as data:
-            arrays = {k: data[k] for k in data.files}
-    except FileNotFoundError:
-        raise InputError(f"{what} not found", source=src) from None
-    except Exception as exc:  # noqa: BLE001 - zip, format and OS errors all mean 'unreadable'
-        raise InputError(f"not a readable {what} ({type(exc).__name__}: {exc})",
-                         source=src) from None
-    try:
-        meta = json.loads(str(arrays.pop("metadata")))
-    except (KeyError, ValueError):
-        raise InputError(f"not a pwsolid {what} (no metadata)", source=src) from None
-    if meta.get("format") != fmt:
-        raise InputError(f"unsupported {what} format {meta.get('format')!r}; this version "
-                         f"reads {fmt}", source=src)
-    if array_checksum(arrays) != meta.get("checksum"):
-        raise InputError(f"the {what} is corrupted (checksum mismatch)", source=src)
-    return arrays, meta

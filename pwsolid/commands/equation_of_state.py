@@ -48,6 +48,9 @@ def register(subparsers) -> None:
     p.add_argument("--restart-file", metavar="FILE",
                    help="where finished points are kept (default <stem>.eos-points.json in "
                         "the output directory)")
+    p.add_argument("--accept-mismatch", action="store_true",
+                   help="reuse the points of a restart file made for another calculation "
+                        "instead of refusing it; the differences are recorded in the result")
     p.set_defaults(handler=run)
 
 
@@ -169,7 +172,8 @@ def run(args) -> int:
               f"k-mesh {'x'.join(map(str, run_input.settings.kpoint_mesh))}; "
               f"restart file {restart}", flush=True)
     scan = scan_volumes(c, run_input.settings, volume_range=volume_range, n_points=n_points,
-                        c_over_a_values=qs, progress=bar, store=restart)
+                        c_over_a_values=qs, progress=bar, store=restart,
+                        accept_mismatch=args.accept_mismatch)
     doc = scan.as_document()
     doc["title"] = run_input.title
     doc["input"] = run_input.echo
