@@ -304,16 +304,27 @@ def test_a_trajectory_log_survives_being_cut_and_refuses_edits(tmp_path):
         store.RecordLog(path, "relaxation-trajectory", fp)
 
 
+TINY_INPUT = """
+[crystal]
+prototype = "diamond"
+lattice_constant = "5.43 angstrom"
+species = "Si"
+[basis]
+cutoff = "5 Ha"
+[brillouin_zone]
+mesh = [2, 2, 2]
+shift = [0, 0, 0]
+[pseudopotentials]
+Si = "Si-appelbaum-hamann.toml"
+"""
+
+
 def test_the_band_structure_command_refuses_a_damaged_density_with_exit_3(tmp_path, capsys):
     from pwsolid.cli import main
-
-    inp = tmp_path / "si.toml"
-    inp.write_text('[crystal]\nprototype = "diamond"\nlattice_constant = "5.43 angstrom"\n'
-                   'species = "Si"\n[basis]\ncutoff = "5 Ha"\n[brillouin_zone]\n'
-                   'mesh = [2, 2, 2]\nshift = [0, 0, 0]\n[pseudopotentials]\n'
-                   'Si = "Si-appelbaum-hamann.toml"\n')
     from pwsolid.config import load_input
 
+    inp = tmp_path / "si.toml"
+    inp.write_text(TINY_INPUT)
     run = load_input(inp)
     for how in DAMAGE:
         path = tmp_path / f"{how.replace(' ', '-')}.density.npz"
@@ -327,6 +338,41 @@ def test_the_band_structure_command_refuses_a_damaged_density_with_exit_3(tmp_pa
         assert code == EXIT_INVALID_INPUT, how
         assert str(path) in err and "Traceback" not in err
         assert path.read_bytes() == before and not (tmp_path / "out").exists()
+
+
+def test_the_ground_state_command_refuses_a_foreign_checkpoint_with_exit_3(tmp_path, capsys):
+    from pwsolid.cli import main
+
+    inp = tmp_path / "si.toml"
+    inp.write_text(TINY_INPUT)
+    ckpt = tmp_path / "si.checkpoint.npz"
+    ckpt.write_bytes(np.random.default_rng(5).bytes(4000))
+    before = ckpt.read_bytes()
+    assert main(["ground-state", str(inp), "--quiet"]) == EXIT_INVALID_INPUT
+    err = capsys.readouterr().err
+    assert str(ckpt) in err and "SCF checkpoint" in err and "Traceback" not in err
+    assert ckpt.read_bytes() == before and not (tmp_path / "si.result.json").exists()
+
+
+def test_a_density_of_another_functional_is_used_on_request_and_documented(tmp_path, capsys):
+    from pwsolid.cli import main
+    from pwsolid.config import load_input
+
+    inp = tmp_path / "si.toml"
+    inp.write_text(TINY_INPUT)
+    density = tmp_path / "lda.density.npz"
+    _write_density(density, load_input(inp).crystal, load_input(inp).settings)
+    other = tmp_path / "pw92.toml"
+    other.write_text(TINY_INPUT + '[exchange_correlation]\nfunctional = "lda-pw92"\n')
+    args = ["band-structure", str(other), "--density-file", str(density), "--quiet",
+            "--points", "12", "--formats", "svg", "--output-dir", str(tmp_path / "out")]
+    assert main(args) == EXIT_INVALID_INPUT
+    assert "functional differs: file lda-pz81, input lda-pw92" in capsys.readouterr().err
+    assert main(args + ["--accept-mismatch"]) == 0
+    doc = json.loads((tmp_path / "out" / "pw92.bands.json").read_text())
+    assert doc["details"]["accepted_mismatches"] == [
+        "functional differs: file lda-pz81, input lda-pw92"]
+    assert "another calculation" in doc["source"]
 
 
 # --- file modes ----------------------------------------------------------------------
