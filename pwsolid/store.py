@@ -429,6 +429,7 @@ def load_record(path, kind, fp: Fingerprint | None, *,
     try:
         header = json.loads(str(arrays.pop("header")))
     except (KeyError, ValueError):
+        _refuse_first_layout(arrays.get("metadata"), kind, src)
         raise InputError(f"not a pwsolid {kind.label} (no record header); give the right file",
                          source=src) from None
     _check_kind(header, kind, _ARCHIVE_FORMAT, src)
@@ -465,6 +466,15 @@ def _read_npz(path, label: str, src: str) -> dict:
         # numpy's own message suggests unpickling, which is never safe here: not repeated
         raise InputError(f"not a pwsolid {label} (unreadable or corrupted bytes); give the "
                          "right file", source=src) from None
+
+
+def _refuse_first_layout(marker, kind: RecordKind, src: str) -> None:
+    """Files of the first layout (before the one store) named their own format,
+    'pwsolid.<something>/1': say so rather than calling them foreign."""
+    text = "" if marker is None else str(marker)
+    if '"format": "pwsolid.' in text or text.startswith("pwsolid."):
+        raise InputError(f"the {kind.label} was written by an older pwsolid (before fingerprints "
+                         "of the whole calculation): delete it and recompute", source=src)
 
 
 # --- logs -----------------------------------------------------------------------------
@@ -507,6 +517,8 @@ class RecordLog:
                              f"({type(exc).__name__}: {exc}); delete it to start afresh",
                              source=src) from None
         if not isinstance(doc, dict) or doc.get("format") != _LOG_FORMAT:
+            _refuse_first_layout(doc.get("format") if isinstance(doc, dict) else None,
+                                 self.kind, src)
             raise InputError(f"not a {label} (expected a pwsolid record log); choose another "
                              "file name", source=src)
         _check_kind(doc, self.kind, _LOG_FORMAT, src)

@@ -270,6 +270,20 @@ def test_damaged_or_foreign_files_are_refused_and_kept(kind, how, tmp_path):
     assert path.read_bytes() == before                   # nothing overwritten
 
 
+def test_files_of_the_first_layout_are_refused_as_older(tmp_path):
+    # the layout before the one store: a density archive with its own format name, and
+    # a restart file with only a digest of the settings
+    old = tmp_path / "old.density.npz"
+    np.savez_compressed(old, density=np.zeros((2, 2, 2)), metadata=np.array(json.dumps(
+        {"format": "pwsolid.density/1", "checksum": "0"})))
+    with pytest.raises(InputError, match="older pwsolid"):
+        store.load_density(old)
+    points = tmp_path / "old.eos-points.json"
+    points.write_text(json.dumps({"format": "pwsolid.volume-points/1", "points": []}))
+    with pytest.raises(InputError, match="older pwsolid"):
+        _read_points(points, SI, BASE)
+
+
 @pytest.mark.parametrize("kind, container", [("relaxation-step", "archive"),
                                              ("phonon-displacements", "archive")])
 @pytest.mark.parametrize("how", DAMAGE)
