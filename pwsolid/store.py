@@ -336,17 +336,20 @@ def _check_kind(header, kind: RecordKind, fmt: str, src: str) -> None:
 
 def _check_fingerprint(header, kind: RecordKind, fp: Fingerprint | None,
                        accept_mismatch: bool, src: str) -> tuple[str, ...]:
-    """The differences from ``fp``: refused unless ``accept_mismatch``."""
+    """The differences from ``fp`` (refused unless ``accept_mismatch``), after those
+    accepted earlier and recorded in the file."""
     if fp is None:
         return ()
     differ = fp.differences(header.get("fingerprint"))
+    # differences accepted when the file was made (or adopted) stay on record
+    earlier = [str(d) for d in header.get("accepted_mismatches") or ()]
     if differ and not accept_mismatch:
         raise InputError(
             f"the {kind.label} belongs to a different calculation (another crystal or with "
             f"other settings): {'; '.join(differ)}. Delete it or give the right file, or "
             "accept the difference explicitly (accept_mismatch=True, --accept-mismatch)",
             source=src)
-    return differ
+    return tuple(dict.fromkeys([*earlier, *differ]))
 
 
 def _header(kind: RecordKind, fmt: str, fp: Fingerprint, metadata, accepted) -> dict:

@@ -199,6 +199,17 @@ def test_an_accepted_mismatch_is_reported(kind, tmp_path):
     out = read(path, SI, BASE.replace(functional="lda-pw92"), accept_mismatch=True)
     lines = out["mismatches"] if kind == "density" else out.messages
     assert any("functional differs: file lda-pz81, input lda-pw92" in m for m in lines)
+    if kind == "scan points":
+        # nothing new was written: the file is still the other calculation's
+        with pytest.raises(InputError, match="functional differs"):
+            read(path, SI, BASE.replace(functional="lda-pw92"))
+        # more points written into it: it holds points of two calculations and says so
+        # from then on
+        pw92 = BASE.replace(functional="lda-pw92")
+        scan_volumes(SI, pw92, n_points=7, solver=_model_solver, store=path,
+                     accept_mismatch=True)
+        again = read(path, SI, pw92)
+        assert any("functional differs: file lda-pz81" in m for m in again.messages)
 
 
 # --- damaged and foreign files -------------------------------------------------------
