@@ -85,6 +85,8 @@ class RecordKind:
         ``"archive"`` (arrays, ``.npz``) or ``"log"`` (JSON list of entries).
     entries_key : str
         Name of the list of entries in a log file.
+    remedy : str
+        What the user can do when a file of another calculation is refused.
     """
 
     name: str
@@ -92,6 +94,7 @@ class RecordKind:
     version: int
     container: str
     entries_key: str = "entries"
+    remedy: str = "delete it or give the right file"
 
 
 RECORD_KINDS: dict[str, RecordKind] = {}
@@ -108,9 +111,13 @@ def register_kind(kind: RecordKind) -> RecordKind:
 
 
 for _kind in (
-        RecordKind("scf-checkpoint", "SCF checkpoint", 2, "archive"),
-        RecordKind("density", "density file", 2, "archive"),
-        RecordKind("volume-points", "restart file of a volume scan", 2, "log", "points"),
+        RecordKind("scf-checkpoint", "SCF checkpoint", 2, "archive",
+                   remedy="delete it or pass --fresh to start over"),
+        RecordKind("density", "density file", 2, "archive",
+                   remedy="run 'pwsolid ground-state' on the input again or pass the right "
+                          "--density-file"),
+        RecordKind("volume-points", "restart file of a volume scan", 2, "log", "points",
+                   remedy="delete it, or give another restart file (--restart-file)"),
         RecordKind("relaxation-step", "relaxation checkpoint", 1, "archive"),
         RecordKind("relaxation-trajectory", "relaxation trajectory", 1, "log", "steps"),
         RecordKind("phonon-displacements", "phonon displacement record", 1, "archive")):
@@ -346,8 +353,8 @@ def _check_fingerprint(header, kind: RecordKind, fp: Fingerprint | None,
     if differ and not accept_mismatch:
         raise InputError(
             f"the {kind.label} belongs to a different calculation (another crystal or with "
-            f"other settings): {'; '.join(differ)}. Delete it or give the right file, or "
-            "accept the difference explicitly (accept_mismatch=True, --accept-mismatch)",
+            f"other settings): {'; '.join(differ)}. To go on, {kind.remedy}, or accept the "
+            "difference explicitly (accept_mismatch=True, --accept-mismatch)",
             source=src)
     return tuple(dict.fromkeys([*earlier, *differ]))
 
