@@ -379,6 +379,25 @@ def test_the_ground_state_command_refuses_a_foreign_checkpoint_with_exit_3(tmp_p
     assert ckpt.read_bytes() == before and not (tmp_path / "si.result.json").exists()
 
 
+def test_output_names_and_verbosity_do_not_enter_the_fingerprint(tmp_path, capsys):
+    # a quiet run stopped after two iterations leaves its checkpoint; the same input run
+    # with another result file and density file, and printing its iterations, resumes it
+    from pwsolid.cli import main
+
+    inp = tmp_path / "si.toml"
+    inp.write_text(TINY_INPUT + "[self_consistency]\nmax_iterations = 2\n")
+    assert main(["ground-state", str(inp), "--quiet"]) == 4        # not converged: kept
+    assert (tmp_path / "si.checkpoint.npz").exists()
+    inp.write_text(TINY_INPUT)
+    capsys.readouterr()
+    assert main(["ground-state", str(inp), "--result-file", str(tmp_path / "other.json"),
+                 "--density-file", str(tmp_path / "other.density.npz")]) == 0
+    assert "resuming from" in capsys.readouterr().out
+    doc = json.loads((tmp_path / "other.json").read_text())
+    assert any(m.startswith("resumed from") for m in doc["messages"])
+    assert not any("another calculation" in m for m in doc["messages"])
+
+
 def test_a_density_of_another_functional_is_used_on_request_and_documented(tmp_path, capsys):
     from pwsolid.cli import main
     from pwsolid.config import load_input
