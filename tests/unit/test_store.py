@@ -133,7 +133,7 @@ PHYSICS = {
     "spin_polarized": (None, SMEARED, None, {"spin_polarized": True}),
     "initial_moment": (None, SPIN, None, {"initial_moment": 1.0}),
     "fixed_moment": (None, SPIN, None, {"fixed_moment": 2.0}),
-    "background_electrons": (None, {}, None, {"background_electrons": 0.5}),
+    "background_electrons": (None, {}, None, {"background_electrons": 2.0}),
     "result_schema": (None, {}, None, "schema"),
 }
 
