@@ -133,6 +133,13 @@ class WarmStart:
     wavefunctions: Any = None
     partner: "WarmStart | None" = None
 
+    @classmethod
+    def of(cls, result, partner: "WarmStart | None" = None) -> "WarmStart":
+        """What a finished ground state offers its neighbours: its self-consistent
+        density, cell volume and orbitals (``partner``: the next nearest, if any)."""
+        return cls(np.asarray(result.density, float), float(result.crystal.volume),
+                   wavefunction_start_of(result), partner)
+
 
 def transfer_density(density: np.ndarray, old_volume: float, new_shape,
                      new_volume: float) -> np.ndarray:
