@@ -114,7 +114,10 @@ CASES = [
     ("huge lattice constant", proto("fcc", '"Al"', a='"1e5 bohr"'), "crystal.lattice_constant",
      "between 0.5 and 1000.0 bohr"),
     ("negative c/a", proto("hcp", '"Ti"', extra="c_over_a = -1.6\n"), "crystal.c_over_a",
-     "positive length"),
+     "positive number (the ratio c/a)"),
+    # the value is echoed as typed, in the user's unit (issue 15)
+    ("negative lattice constant echoed as typed", proto("fcc", '"Al"', a='"-4.05 angstrom"'),
+     "crystal.lattice_constant", "(got '-4.05 angstrom')"),
     # species and prototypes
     ("one species for zincblende", proto("zincblende", '["Ga"]'), "crystal.species",
      "prototype 'zincblende' takes 2 species (1 given)"),
