@@ -26,7 +26,7 @@ import numpy as np
 
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
-from .resources import pseudopotential_dir
+from .resources import inputs_dir, pseudopotential_dir
 from .settings import SETTINGS_TABLE, UNIT_TEXT, GroundStateSettings, Setting
 from .preflight import check_cell_shape
 from .units import BOHR_ANGSTROM, parse_quantity
@@ -85,8 +85,7 @@ _KIND_TEXT = {
 
 #: Keys of [crystal]: read by the reader's own code (they build a Crystal), declared here.
 CRYSTAL_KEYS: tuple[Setting, ...] = (
-    Setting("crystal.prototype", None, "name",
-            f"structure: one of {', '.join([*PROTOTYPES, _EXPLICIT])}",
+    Setting("crystal.prototype", None, "name", "structure",
             choices=lambda: (*PROTOTYPES, _EXPLICIT), default_text="required"),
     Setting("crystal.lattice_constant", None, "quantity",
             "cube edge / hexagonal a; scales lattice_vectors for 'explicit'", unit="length",
@@ -114,12 +113,12 @@ CRYSTAL_KEYS: tuple[Setting, ...] = (
 #: Keys of [output]: where the run writes (relative names are taken from the input's folder).
 OUTPUT_KEYS: tuple[Setting, ...] = (
     Setting("output.result_file", None, "file", "JSON result document",
-            default_text="<input stem>.result.json in the working directory"),
+            default_text="<input stem>.result.json"),
     Setting("output.density_file", None, "file", "density checkpoint",
-            default_text="<input stem>.density.npz in the working directory"),
+            default_text="<input stem>.density.npz"),
     Setting("output.checkpoint_file", None, "file",
             "SCF checkpoint for resuming an interrupted run",
-            default_text="<input stem>.checkpoint.npz in the working directory"),
+            default_text="<input stem>.checkpoint.npz"),
     Setting("output.checkpoint_interval", None, "integer",
             "write the SCF checkpoint every this many iterations", low=1, high=10000,
             rule="must be between 1 and 10000", default_text="1"),
@@ -194,17 +193,22 @@ def schema_table() -> tuple[KeyInfo, ...]:
 
 def schema_text(markdown: bool = False) -> str:
     """The schema as a plain-text (or Markdown) table for help screens and the README."""
-    rows = [(r.key, r.type, r.default, r.description + (f" ({r.accepted})" if r.accepted else ""))
+    rows = [(r.key, r.type, r.default, r.accepted.removeprefix("accepted: "), r.description)
             for r in schema_table()]
-    head = ("key", "type", "default", "meaning")
+    head = ("key", "type", "default", "accepted", "meaning")
     if markdown:
         lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
         lines += ["| " + " | ".join(f"`{c}`" if i == 0 else c.replace("|", "\\|")
                                     for i, c in enumerate(r)) + " |" for r in rows]
         return "\n".join(lines)
+    lines = []
     widths = [max(len(r[i]) for r in [head, *rows]) for i in range(3)]
     fmt = "  ".join(f"{{:<{w}}}" for w in widths) + "  {}"
-    return "\n".join(fmt.format(*r).rstrip() for r in [head, *rows])
+    for r in [head, *rows]:
+        lines.append(fmt.format(*r[:3], r[4]).rstrip())
+        if r[3] and r is not head:
+            lines.append(" " * (sum(widths) + 6) + f"[{r[3]}]")
+    return "\n".join(lines)
 
 
 @dataclass(frozen=True)
@@ -698,4 +702,16 @@ class _Reader:
 
     def _output_path(self, table: Mapping, key: str, default: str) -> Path:
         text = self._file_text(table[key], f"output.{key}") if key in table else default
-        return self.base_dir / Path(text).expanduser()
+        return self._output_base() / Path(text).expanduser()
+
+    def _output_base(self) -> Path:
+        """Relative output names are taken from the input's folder, except for the bundled
+        example inputs: their results go to the working directory, never among the examples."""
+        try:
+            examples = inputs_dir().resolve()
+            folder = self.base_dir.resolve()
+        except OSError:
+            return self.base_dir
+        if folder == examples or examples in folder.parents:
+            return Path.cwd()
+        return self.base_dir
