@@ -42,11 +42,11 @@ LONG_RUN_SECONDS = 60.0
 # Rough costs behind the estimate (common practice for plane-wave codes, calibrated
 # loosely on this program's silicon benchmark): about 3 wave-function blocks alive per
 # channel (orbitals, Davidson residuals and their H-images), 30 real fields on the grid
-# (densities, potentials, mixer history, G-vectors), a flop rate of 1e9 per second, about
+# (densities, potentials, mixer history, G-vectors), a flop rate of 3e9 per second, about
 # 12 Hamiltonian applications per band and 15 iterations.
 _BLOCKS_PER_CHANNEL = 4
 _GRID_FIELDS = 40
-_FLOPS_PER_SECOND = 1.0e9
+_FLOPS_PER_SECOND = 3.0e9
 _APPLICATIONS_PER_BAND = 12
 _ITERATIONS = 15
 

@@ -433,8 +433,17 @@ def check_electron_count(settings: "GroundStateSettings", n_electrons: float) ->
             row = _BY_FIELD[name]
             row.fail(f"N_up - N_down cannot exceed the {n_electrons:g} valence electrons per "
                      f"cell in size; accepted: -{n_electrons:g} to {n_electrons:g}", moment)
-    if (settings.smearing == NO_SMEARING and not settings.spin_polarized
-            and abs(n_electrons / 2 - round(n_electrons / 2)) > 1e-8):
+    if settings.smearing != NO_SMEARING:
+        return
+    moment = (settings.fixed_moment or 0.0) if settings.spin_polarized else 0.0
+    # fixed (Aufbau) filling fills whole orbitals: N/2 of them, or (N +- M)/2 per spin
+    counts = [0.5 * (n_electrons + moment), 0.5 * (n_electrons - moment)]
+    if any(abs(c - round(c)) > 1e-8 for c in counts):
+        if settings.spin_polarized and settings.fixed_moment:
+            _BY_FIELD["fixed_moment"].fail(
+                f"with fixed occupations each spin holds a whole number of electrons, "
+                f"(N +- M)/2 with N = {n_electrons:g}: give a moment of the same parity as N, "
+                "or set occupations.smearing", settings.fixed_moment)
         raise InputError(f"{n_electrons:g} valence electrons per cell cannot fill bands "
                          "completely; for a metal set occupations.smearing (e.g. \"cold\")",
                          key="occupations.smearing", value=settings.smearing)

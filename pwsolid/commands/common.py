@@ -225,7 +225,8 @@ def announce_estimate(estimate, *, always: bool = False) -> None:
     from ..preflight import LONG_RUN_SECONDS
 
     if always or estimate.seconds > LONG_RUN_SECONDS:
-        print(estimate.describe().capitalize(), flush=True)
+        text = estimate.describe()
+        print(text[:1].upper() + text[1:], flush=True)
 
 
 def plan_run(run_input, *, times: int = 1, always: bool = False):
