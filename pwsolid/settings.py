@@ -24,8 +24,8 @@ import numpy as np
 from .errors import InputError
 from .occupations import SMEARING_SCHEMES
 
-__all__ = ["GroundStateSettings", "Setting", "SETTINGS_TABLE", "SETTING_KEYS",
-           "check_electron_count", "NO_SMEARING"]
+__all__ = ["GroundStateSettings", "Setting", "SETTINGS_TABLE", "SETTING_KEYS", "UNIT_TEXT",
+           "NO_SMEARING", "check_electron_count", "setting_row"]
 
 #: The occupation choice for insulators (Aufbau filling); every other name is a
 #: smearing scheme of :data:`pwsolid.occupations.SMEARING_SCHEMES`.
@@ -114,7 +114,6 @@ class Setting:
         if self.low is None and self.high is None:
             return ""
         unit = f" {UNIT_TEXT[self.unit]}" if self.unit else ""
-        integer = self.kind in ("integer", "integers3")
         lead = {"integers3": "must be three integers", "integer": "must be an integer"}.get(
             self.kind, "must lie")
         if self.low_open or self.high_open:
@@ -122,8 +121,7 @@ class Setting:
                     f"{_num(self.high)}{')' if self.high_open else ']'}{unit}")
         if self.high is None:
             return f"{lead} at least {_num(self.low)}{unit}"
-        middle = " between" if integer or lead == "must lie" else " between"
-        return f"{lead}{middle} {_num(self.low)}{unit} and {_num(self.high)}{unit}"
+        return f"{lead} between {_num(self.low)}{unit} and {_num(self.high)}{unit}"
 
     def in_range(self, x: float) -> bool:
         if not math.isfinite(x):
@@ -193,11 +191,10 @@ def _as_number(value, integer: bool):
 
 
 def _as_triple(value, integer: bool):
-    try:
-        items = list(np.atleast_1d(np.asarray(value, dtype=object)))
-    except Exception:  # noqa: BLE001 - anything that is not a list of three
+    if isinstance(value, (str, bytes)) or not hasattr(value, "__len__"):
         return None
-    if len(items) != 3 or np.ndim(value) != 1:
+    items = list(value)
+    if len(items) != 3:
         return None
     out = tuple(_as_number(v, integer) for v in items)
     return None if any(v is None for v in out) else out
