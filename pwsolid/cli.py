@@ -163,15 +163,15 @@ def _ground_state(args) -> int:
                         ("checkpoint", "--checkpoint-file")):
         given = getattr(args, f"{key}_file")
         check_output_file(files[key], option if given else f"output.{key}_file")
-    plan_run(run, always=not args.quiet)
-    if args.fresh and files["checkpoint"].exists() and args.writes_files:
-        files["checkpoint"].unlink()
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
     c = run.crystal
     say(f"{run.title or path.name}")
     say(f"  {_atoms(c.n_atoms)} ({', '.join(c.species)}), volume {c.volume:.4f} bohr^3, "
         f"cutoff {run.settings.cutoff:g} Ha, k-mesh {'x'.join(map(str, run.settings.kpoint_mesh))}")
+    plan_run(run, always=not args.quiet)
     _note_low_cutoff(run)
+    if args.fresh and files["checkpoint"].exists() and args.writes_files:
+        files["checkpoint"].unlink()
     try:
         gs = ground_state(c, run.settings, log=say,
                           checkpoint=files["checkpoint"] if args.writes_files else None,
