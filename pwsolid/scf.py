@@ -17,7 +17,6 @@ from typing import Callable
 
 import numpy as np
 
-from . import xc as _xc
 from .basis import (PlaneWaveSet, density_sphere, grid_g_vectors, make_basis,
                     transfer_coefficients)
 from .crystal import Crystal
