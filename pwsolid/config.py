@@ -9,7 +9,12 @@ echo of the whole input with every default filled in.
 
 Every user mistake raises one :class:`~pwsolid.errors.InputError` naming the file,
 the dotted key, the value and what is accepted. The accepted keys are declared
-once, in the table behind :func:`schema_table`, which also feeds the help text.
+once, as rows of :class:`~pwsolid.settings.Setting`: the ground-state settings in
+:data:`pwsolid.settings.SETTINGS_TABLE`, the crystal and output keys here, all listed by
+table in :data:`INPUT_TABLES`. The reader, :func:`schema_table` (``pwsolid input-keys``
+and the README table) and the range messages are made from those rows. Checks that need
+the pseudopotentials or the basis (electron count, FFT grid, memory) live in
+:mod:`pwsolid.preflight`.
 """
 
 from __future__ import annotations
