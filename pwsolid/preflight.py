@@ -233,13 +233,16 @@ class GroundStatePlan:
     estimate: ResourceEstimate
 
 
-def plan_ground_state(crystal: Crystal, settings: GroundStateSettings) -> GroundStatePlan:
+def plan_ground_state(crystal: Crystal, settings: GroundStateSettings, *,
+                      join_kpoints=join_by_full_symmetry) -> GroundStatePlan:
     """Run every check of a ground state that comes before its first iteration.
 
     Loads the pseudopotentials and the functional, counts the electrons and checks the
     moments and the filling against them, estimates memory and time and refuses what
     cannot fit the available memory, then builds the k-points and plane-wave sets
     (checking a forced FFT grid and the number of plane waves against the bands).
+    ``join_kpoints(kpoints, symmetry)`` completes a mesh that the full group does not
+    keep (the driver passes its own, so that a test can switch it off).
 
     Raises
     ------
@@ -256,7 +259,7 @@ def plan_ground_state(crystal: Crystal, settings: GroundStateSettings) -> Ground
                                  time_reversal=settings.use_symmetry)
     if settings.use_symmetry:
         # a mesh the full group does not keep: symmetrise with the full group anyway
-        k_list = join_by_full_symmetry(k_list, symmetry)
+        k_list = join_kpoints(k_list, symmetry)
     grid = tuple(settings.fft_grid or fft_grid_for_cutoff(crystal.lattice, settings.cutoff))
     n_bands = band_count(settings, n_el)
     estimate = estimate_resources(crystal, settings, len(k_list.fractional), n_bands, grid)

@@ -28,7 +28,7 @@ from .checkpoint import load_checkpoint, save_checkpoint
 from .errors import ConvergenceError, ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, core_density, kinetic_preconditioner, local_potential
-from .kpoints import KPointSet
+from .kpoints import KPointSet, join_by_full_symmetry
 from .mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
 from .parallel import (SerialCommunicator, distribute, fft_threads_for, single_threaded_blas,
                        world)
@@ -121,7 +121,7 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
     settings = settings or GroundStateSettings()
     n_spin = 2 if settings.spin_polarized else 1
     # every check before the first iteration lives in the plan (check-input runs it too)
-    plan = plan_ground_state(crystal, settings)
+    plan = plan_ground_state(crystal, settings, join_kpoints=join_by_full_symmetry)
     pps, functional, n_el = plan.pseudopotentials, plan.functional, plan.n_electrons
     symmetry, k_list, grid, bases, n_bands = (plan.symmetry, plan.kpoints, plan.grid,
                                               plan.bases, plan.n_bands)

@@ -439,5 +439,6 @@ def check_electron_count(settings: "GroundStateSettings", n_electrons: float) ->
                 f"(N +- M)/2 with N = {n_electrons:g}: give a moment of the same parity as N, "
                 "or set occupations.smearing", settings.fixed_moment)
         raise InputError(f"{n_electrons:g} valence electrons per cell cannot fill bands "
-                         "completely; for a metal set occupations.smearing (e.g. \"cold\")",
+                         "completely; an insulating (Aufbau) filling needs an even electron "
+                         "count per cell; for a metal set occupations.smearing (e.g. \"cold\")",
                          key="occupations.smearing", value=settings.smearing)
