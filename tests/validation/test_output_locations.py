@@ -5,7 +5,8 @@ go: a directory given as a file, a file given as a directory, a parent that is a
 (so that the directory cannot be created) and a read-only parent. Each must end in exit
 code 3 with one clear line naming the option, no traceback, and no calculation started:
 the fixture replaces the entry points of the work (the SCF set-up, the uniform-gas
-testbench, the empirical bands) with a function that fails loudly.
+testbench, the empirical bands, the jellium and response studies) with a function that
+fails loudly.
 """
 
 import importlib
@@ -51,6 +52,10 @@ def setup(tmp_path, monkeypatch):
                         "testbench_report", _no_work)
     monkeypatch.setattr(importlib.import_module("pwsolid.workflows.band_structure"),
                         "empirical_band_structure", _no_work)
+    monkeypatch.setattr(importlib.import_module("pwsolid.workflows.density_response"),
+                        "static_response", _no_work)
+    monkeypatch.setattr(importlib.import_module("pwsolid.workflows.jellium"),
+                        "jellium_convergence", _no_work)
     monkeypatch.chdir(tmp_path)
     (tmp_path / "a-directory").mkdir()
     (tmp_path / "a-file.txt").write_text("not a directory\n")
