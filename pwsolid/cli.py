@@ -45,7 +45,8 @@ def build_parser() -> argparse.ArgumentParser:
                      help="replace a finished result document")
     run.add_argument("--quiet", action="store_true", help="print only the summary")
 
-    check = sub.add_parser("check-input", help="validate an input file without running it")
+    check = sub.add_parser("check-input", help="run every check the run makes before its first "
+                           "iteration (outputs, electrons, bands, memory) and print the estimate")
     check.add_argument("input")
 
     keys = sub.add_parser("input-keys", help="list every input key with its type, unit and default")
