@@ -110,7 +110,7 @@ def _scf_solver(crystal: Crystal, settings: GroundStateSettings,
 def _fingerprint(crystal: Crystal, settings: GroundStateSettings) -> tuple[str, dict]:
     """(digest, values) of the store's fingerprint of a scan's input crystal and settings,
     for workflows that key their own files by it (see :mod:`pwsolid.store`)."""
-    from ..scf import load_pseudopotentials
+    from ..preflight import load_pseudopotentials
     from ..store import fingerprint
 
     pps = load_pseudopotentials(crystal.species, settings.pseudopotentials)

@@ -14,7 +14,7 @@ from __future__ import annotations
 import math
 
 from ..crystal import Crystal
-from ..scf import load_pseudopotentials
+from ..preflight import load_pseudopotentials
 from ..settings import GroundStateSettings
 from ..store import RecordLog, fingerprint
 from .volume_scan_result import ScanPoint
