@@ -30,6 +30,7 @@ import numpy as np
 
 from .basis import grid_miller_indices
 from .electrostatics import ewald_forces
+from .parallel import single_threaded_blas
 from .scf import GroundState, SystemSetup, _xc_on_grid
 from .symmetry import SymmetryOperations, atom_permutations
 from .units import BOHR_ANGSTROM, HARTREE_EV
@@ -235,7 +236,9 @@ def atomic_forces(gs: GroundState, *, symmetrize: bool = True) -> AtomicForces:
     parts = {name: np.zeros((crystal.n_atoms, 3)) for name in _PARTS}
     if crystal.n_atoms:
         parts["local"], parts["partial_core"] = _grid_forces(gs)
-        parts["nonlocal"] = _nonlocal_forces(gs)
+        # small matrix products: BLAS threads only fight each other (see pwsolid.parallel)
+        with single_threaded_blas():
+            parts["nonlocal"] = _nonlocal_forces(gs)
         parts["ewald"] = ewald_forces(crystal.lattice, crystal.cartesian_positions,
                                       [setup.pseudopotentials[s].valence for s in crystal.species])
     total = sum(parts.values())
