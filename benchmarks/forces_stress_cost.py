@@ -25,6 +25,7 @@ import numpy as np
 
 import pwsolid
 from pwsolid.forces import atomic_forces
+from pwsolid.safe_files import atomic_write_bytes
 
 
 def _silicon(atoms: int) -> pwsolid.Crystal:
@@ -90,8 +91,7 @@ def main(argv=None) -> dict:
     print(f"  together      {100 * figures['forces_and_stress_share_of_scf']:.2f} % of the SCF "
           "(target: at most 15 %)")
     if args.json:
-        with open(args.json, "w") as fh:
-            json.dump(figures, fh, indent=2)
+        atomic_write_bytes(args.json, json.dumps(figures, indent=2).encode())
     return figures
 
 
