@@ -220,7 +220,9 @@ def atomic_forces(gs: GroundState, *, symmetrize: bool = True) -> AtomicForces:
         orbitals, accurate to first order in the SCF residual.
     symmetrize : bool
         Average the total over the crystal's space-group operations (those the
-        calculation found; none when it ran with ``use_symmetry=False``).
+        calculation found; none when it ran with ``use_symmetry=False``). Keep it on
+        for a run on a symmetry-reduced k-mesh: its separable term is a sum over the
+        irreducible k-points, which is the full-mesh force only after the average.
 
     Returns
     -------
