@@ -16,6 +16,7 @@ from pathlib import Path
 from ._version import __version__
 from .errors import (EXIT_INTERNAL, EXIT_INVALID_INPUT, EXIT_NOT_CONVERGED, EXIT_OK, EXIT_USAGE,
                      ConvergenceError, ConvergenceWarning, InputError)
+from .commands.common import check_output_file, plan_run, write_or_keep
 from .units import HARTREE_EV
 
 __all__ = ["main", "main_entry", "build_parser"]
@@ -24,7 +25,8 @@ __all__ = ["main", "main_entry", "build_parser"]
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="pwsolid",
-        description="Plane-wave Kohn-Sham LDA calculations for simple solids.",
+        description="Plane-wave Kohn-Sham density-functional calculations (LDA and GGA) for "
+                    "simple solids.",
         epilog="Exit codes: 0 success, 2 usage error, 3 invalid input, 4 not converged, "
                "70 internal error.")
     parser.add_argument("--version", action="version", version=f"pwsolid {__version__}")
@@ -43,7 +45,8 @@ def build_parser() -> argparse.ArgumentParser:
                      help="replace a finished result document")
     run.add_argument("--quiet", action="store_true", help="print only the summary")
 
-    check = sub.add_parser("check-input", help="validate an input file without running it")
+    check = sub.add_parser("check-input", help="run every check the run makes before its first "
+                           "iteration (outputs, electrons, bands, memory) and print the estimate")
     check.add_argument("input")
 
     keys = sub.add_parser("input-keys", help="list every input key with its type, unit and default")
@@ -157,14 +160,19 @@ def _ground_state(args) -> int:
             raise InputError(f"{files['result']} holds a finished result; pass --overwrite to "
                              "replace it or --result-file to write elsewhere",
                              key="output.result_file", value=str(files["result"]))
-    if args.fresh and files["checkpoint"].exists() and args.writes_files:
-        files["checkpoint"].unlink()
+    for key, option in (("result", "--result-file"), ("density", "--density-file"),
+                        ("checkpoint", "--checkpoint-file")):
+        given = getattr(args, f"{key}_file")
+        check_output_file(files[key], option if given else f"output.{key}_file")
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
     c = run.crystal
     say(f"{run.title or path.name}")
-    say(f"  {c.n_atoms} atoms ({', '.join(c.species)}), volume {c.volume:.4f} bohr^3, "
+    say(f"  {_atoms(c.n_atoms)} ({', '.join(c.species)}), volume {c.volume:.4f} bohr^3, "
         f"cutoff {run.settings.cutoff:g} Ha, k-mesh {'x'.join(map(str, run.settings.kpoint_mesh))}")
+    plan_run(run, always=not args.quiet)
     _note_low_cutoff(run)
+    if args.fresh and files["checkpoint"].exists() and args.writes_files:
+        files["checkpoint"].unlink()
     try:
         gs = ground_state(c, run.settings, log=say,
                           checkpoint=files["checkpoint"] if args.writes_files else None,
@@ -177,8 +185,9 @@ def _ground_state(args) -> int:
         return 130
     doc = ground_state_document(gs, input_echo=run.echo, title=run.title)
     if args.writes_files:
-        write_json(files["result"], doc)
-        save_density(files["density"], gs)
+        files["result"] = write_or_keep(files["result"], lambda p: write_json(p, doc), "result")
+        files["density"] = write_or_keep(files["density"], lambda p: save_density(p, gs),
+                                         "density")
         if gs.converged and files["checkpoint"].exists():
             files["checkpoint"].unlink()     # the result and the density are final
     print(_summary(doc))
@@ -189,25 +198,12 @@ def _ground_state(args) -> int:
     return EXIT_OK
 
 
-def _preflight(run) -> dict:
-    """Checks that need the pseudopotential files: their content, and whether the electron
-    count allows the requested filling. Returns the loaded pseudopotentials."""
-    from .scf import load_pseudopotentials
-
-    s = run.settings
-    pps = load_pseudopotentials(run.crystal.species, s.pseudopotentials)
-    n_el = sum(pps[x].valence for x in run.crystal.species) + s.background_electrons
-    if s.smearing == "none" and not s.spin_polarized and abs(n_el / 2 - round(n_el / 2)) > 1e-8:
-        raise InputError(f"{n_el:g} valence electrons per cell cannot fill bands completely; "
-                         "for a metal set occupations.smearing (e.g. \"cold\")",
-                         key="occupations.smearing", value=s.smearing,
-                         source=str(run.source) if run.source else None)
-    return pps
-
-
 def _note_low_cutoff(run) -> None:
     """Say when the cutoff is below what a pseudopotential file recommends."""
-    for species, pp in _preflight(run).items():
+    from .preflight import load_pseudopotentials
+
+    for species, pp in load_pseudopotentials(run.crystal.species,
+                                             run.settings.pseudopotentials).items():
         if pp.suggested_cutoff and run.settings.cutoff < pp.suggested_cutoff:
             print(f"note: basis.cutoff = {run.settings.cutoff:g} Ha is below the "
                   f"{pp.suggested_cutoff:g} Ha that {Path(str(pp.source_file)).name} recommends "
@@ -245,6 +241,10 @@ def _summary(doc: dict) -> str:
     return "\n".join(lines)
 
 
+def _atoms(n: int) -> str:
+    return f"{n} atom" if n == 1 else f"{n} atoms"
+
+
 def _k(k) -> str:
     return "(" + ", ".join(f"{x:.4f}" for x in k) + ")"
 
@@ -253,10 +253,14 @@ def _check_input(args) -> int:
     from .config import load_input
 
     run = load_input(args.input)
-    _preflight(run)
+    for key in ("result_file", "density_file", "checkpoint_file"):
+        check_output_file(getattr(run, key), f"output.{key}")
+    plan = plan_run(run)
     s = run.settings
-    print(f"{args.input}: valid. {run.crystal.n_atoms} atoms, cutoff {s.cutoff:g} Ha, "
-          f"k-mesh {'x'.join(map(str, s.kpoint_mesh))}, functional {s.functional}")
+    print(f"{args.input}: valid. {_atoms(run.crystal.n_atoms)}, {plan.n_electrons:g} electrons, "
+          f"cutoff {s.cutoff:g} Ha, k-mesh {'x'.join(map(str, s.kpoint_mesh))} "
+          f"({len(plan.bases)} k-points), functional {s.functional}")
+    print("  " + plan.estimate.describe())
     return EXIT_OK
 
 
@@ -271,9 +275,13 @@ def _list_pseudopotentials(args) -> int:
     from .pseudo import bundled_pseudopotentials, load_pseudopotential
     from .resources import pseudopotential_dir
 
-    for name in bundled_pseudopotentials():
-        pp = load_pseudopotential(pseudopotential_dir() / name)
-        print(f"{name:<34} Z={pp.valence:g}  {pp.form:<30} {pp.reference}")
+    rows = [(name, f"valence {pp.valence:g}", pp.form, pp.reference)
+            for name in bundled_pseudopotentials()
+            for pp in [load_pseudopotential(pseudopotential_dir() / name)]]
+    head = ("file", "valence", "form", "source")
+    widths = [max(len(r[i]) for r in [head, *rows]) for i in range(3)]
+    for r in [head, *rows]:
+        print("  ".join(f"{c:<{w}}" for c, w in zip(r, widths)) + "  " + r[3])
     return EXIT_OK
 
 

@@ -9,7 +9,12 @@ echo of the whole input with every default filled in.
 
 Every user mistake raises one :class:`~pwsolid.errors.InputError` naming the file,
 the dotted key, the value and what is accepted. The accepted keys are declared
-once, in the table behind :func:`schema_table`, which also feeds the help text.
+once, as rows of :class:`~pwsolid.settings.Setting`: the ground-state settings in
+:data:`pwsolid.settings.SETTINGS_TABLE`, the crystal and output keys here, all listed by
+table in :data:`INPUT_TABLES`. The reader, :func:`schema_table` (``pwsolid input-keys``
+and the README table) and the range messages are made from those rows. Checks that need
+the pseudopotentials or the basis (electron count, FFT grid, memory) live in
+:mod:`pwsolid.preflight`.
 """
 
 from __future__ import annotations
@@ -24,15 +29,15 @@ from typing import Any
 
 import numpy as np
 
-from .basis import fft_grid_for_cutoff
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
-from .resources import pseudopotential_dir
-from .settings import SETTING_KEYS, GroundStateSettings
-from .symmetry import reduced_lattice
+from .resources import inputs_dir, pseudopotential_dir
+from .settings import SETTINGS_TABLE, UNIT_TEXT, GroundStateSettings, Setting
+from .preflight import check_cell_shape
 from .units import BOHR_ANGSTROM, parse_quantity
 
-__all__ = ["RunInput", "KeyInfo", "load_input", "parse_input", "schema_table", "schema_text"]
+__all__ = ["RunInput", "KeyInfo", "load_input", "parse_input", "schema_table", "schema_text",
+           "INPUT_TABLES", "CRYSTAL_KEYS", "OUTPUT_KEYS"]
 
 #: Prototypes built from two species (all others take one).
 _TWO_SPECIES = frozenset({"zincblende", "rocksalt", "cesium-chloride"})
@@ -45,7 +50,6 @@ _C_OVER_A_MAX = 50.0
 _VECTOR_ENTRY_MAX = 100.0
 _SUPERCELL_MAX = 20
 _MAX_ATOMS = 500
-_DEFAULT_UNIT = {"energy": "Ha", "length": "bohr", "inverse_length": "bohr^-1"}
 
 
 @dataclass(frozen=True)
@@ -64,6 +68,8 @@ class KeyInfo:
         Default as it would be written, ``"required"``, or a note.
     description : str
         One line saying what the key does.
+    accepted : str
+        The accepted range or names (as the error messages say it), or ``""``.
     """
 
     key: str
@@ -71,103 +77,93 @@ class KeyInfo:
     unit: str
     default: str
     description: str
-
-
-@dataclass(frozen=True)
-class _Key:
-    kind: str
-    description: str
-    unit: str = ""
-    default: str = ""          # text for crystal/output keys; settings keys use the dataclass
-    field: str | None = None   # GroundStateSettings field fed by this key
+    accepted: str = ""
 
 
 _KIND_TEXT = {
     "name": "string", "file": "file name", "quantity": "",
     "number": "number", "integer": "integer", "boolean": "true or false",
-    "integers3": "3 integers", "numbers3": "3 numbers", "grid": "3 integers",
+    "integers3": "3 integers", "numbers3": "3 numbers",
     "species": "string or list of strings", "vectors": "3 x 3 numbers",
     "atoms": "list of {species, position}",
 }
 
-_SETTINGS_SECTIONS = ("basis", "brillouin_zone", "exchange_correlation", "occupations",
-                      "spin", "self_consistency")
-_SETTINGS_DESCRIPTIONS = {
-    "cutoff": ("quantity", "energy", "plane-wave kinetic-energy cutoff |k+G|^2/2"),
-    "fft_grid": ("grid", "", "force this FFT grid instead of the automatic choice"),
-    "kpoint_mesh": ("integers3", "", "Monkhorst-Pack divisions along the reciprocal vectors"),
-    "kpoint_shift": ("numbers3", "", "mesh shift in mesh steps, each 0 (through Gamma) or 0.5"),
-    "use_symmetry": ("boolean", "", "reduce k-points to the irreducible wedge, symmetrise n(r)"),
-    "functional": ("name", "", "exchange-correlation functional by registry name"),
-    "max_iterations": ("integer", "", "largest number of self-consistency iterations"),
-    "energy_tolerance": ("quantity", "energy", "stop when the total-energy change is below this"),
-    "density_tolerance": ("number", "", "...and integral |n_out - n_in| / N_electrons is below this"),
-    "mixing_weight": ("number", "", "fraction of the residual added per Pulay step, in (0, 1]"),
-    "mixing_history": ("integer", "", "previous densities kept by the Pulay mixer"),
-    "empty_bands": ("integer", "", "bands beyond the occupied ones (automatic: 4, more with "
-                    "smearing)"),
-    "smearing": ("name", "", "none (Aufbau filling) or fermi-dirac, gaussian, methfessel-paxton, "
-                 "cold (for metals)"),
-    "smearing_width": ("quantity", "energy", "smearing width sigma"),
-    "smearing_order": ("integer", "", "order of the Methfessel-Paxton scheme"),
-    "mixing_preconditioner": ("name", "", "auto (Kerker with smearing), kerker or none"),
-    "spin_polarized": ("boolean", "", "collinear spin-polarised (LSDA) calculation"),
-    "initial_moment": ("number", "", "N_up - N_down of the starting density "
-                               "(electrons per cell)"),
-    "fixed_moment": ("number", "", "hold N_up - N_down at this value (automatic: the "
-                            "moment relaxes)"),
-    "screening_wavevector": ("quantity", "inverse_length", "Kerker screening wave vector q0 "
-                             "(automatic: Thomas-Fermi of the mean density)"),
+#: Keys of [crystal]: read by the reader's own code (they build a Crystal), declared here.
+CRYSTAL_KEYS: tuple[Setting, ...] = (
+    Setting("crystal.prototype", None, "name", "structure",
+            choices=lambda: (*PROTOTYPES, _EXPLICIT), default_text="required"),
+    Setting("crystal.lattice_constant", None, "quantity",
+            "cube edge / hexagonal a; scales lattice_vectors for 'explicit'", unit="length",
+            low=_LATTICE_RANGE_BOHR[0], high=_LATTICE_RANGE_BOHR[1], default_text="required",
+            rule=f"must be a positive length between {_LATTICE_RANGE_BOHR[0]} and "
+                 f"{_LATTICE_RANGE_BOHR[1]} bohr ({_LATTICE_RANGE_BOHR[0] * BOHR_ANGSTROM:.3g} "
+                 f"to {_LATTICE_RANGE_BOHR[1] * BOHR_ANGSTROM:.4g} angstrom)"),
+    Setting("crystal.species", None, "species",
+            "element symbol(s): two for zincblende, rocksalt, cesium-chloride, one otherwise",
+            default_text="required (prototypes)"),
+    Setting("crystal.c_over_a", None, "number", "c/a ratio of hcp", low=0.0,
+            high=_C_OVER_A_MAX, low_open=True,
+            rule=f"must be a positive number (the ratio c/a) of at most {_C_OVER_A_MAX:g}",
+            default_text=f"{_IDEAL_C_OVER_A:.6g} (ideal)"),
+    Setting("crystal.lattice_vectors", None, "vectors",
+            "rows a1, a2, a3 in units of lattice_constant", default_text="required (explicit)"),
+    Setting("crystal.atoms", None, "atoms", "atoms with species and fractional position",
+            default_text="required (explicit)"),
+    Setting("crystal.supercell", None, "integers3",
+            f"repeats along a1, a2, a3 (1 to {_SUPERCELL_MAX})", low=1, high=_SUPERCELL_MAX,
+            rule=f"each repeat must be an integer from 1 to {_SUPERCELL_MAX}",
+            default_text="[1, 1, 1]"),
+)
+
+#: Keys of [output]: where the run writes (relative names are taken from the input's folder).
+OUTPUT_KEYS: tuple[Setting, ...] = (
+    Setting("output.result_file", None, "file", "JSON result document",
+            default_text="<input stem>.result.json"),
+    Setting("output.density_file", None, "file", "density checkpoint",
+            default_text="<input stem>.density.npz"),
+    Setting("output.checkpoint_file", None, "file",
+            "SCF checkpoint for resuming an interrupted run",
+            default_text="<input stem>.checkpoint.npz"),
+    Setting("output.checkpoint_interval", None, "integer",
+            "write the SCF checkpoint every this many iterations", low=1, high=10000,
+            rule="must be between 1 and 10000", default_text="1"),
+)
+
+
+def _settings_tables() -> dict[str, tuple[Setting, ...]]:
+    tables: dict[str, list[Setting]] = {}
+    for row in SETTINGS_TABLE:
+        if row.key:
+            tables.setdefault(row.section, []).append(row)
+    return {name: tuple(rows) for name, rows in tables.items()}
+
+
+#: Every table of an input file and its declared keys, in file order. To add a table
+#: (e.g. [relaxation]): declare its rows (``Setting`` with key, kind, unit, range,
+#: meaning, default) and add them here; the reader checks types, ranges and unknown
+#: keys, and ``input-keys`` and the README table list them. Read the checked values
+#: with ``_Reader.table_values`` in :meth:`_Reader.run` and carry them on RunInput.
+INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
+    "crystal": CRYSTAL_KEYS,
+    "pseudopotentials": (),
+    **_settings_tables(),
+    "output": OUTPUT_KEYS,
 }
+_SETTINGS_SECTIONS = tuple(_settings_tables())
+_SCHEMA: dict[str, dict[str, Setting]] = {
+    name: {row.short_key: row for row in rows} for name, rows in INPUT_TABLES.items()}
+_TOP_LEVEL = ("title", *_SCHEMA)
 _SETTINGS_DEFAULTS = {f.name: f.default for f in fields(GroundStateSettings)
                       if f.default is not MISSING}
 
 
-def _build_schema() -> dict[str, dict[str, _Key]]:
-    protos = ", ".join([*PROTOTYPES, _EXPLICIT])
-    schema: dict[str, dict[str, _Key]] = {
-        "crystal": {
-            "prototype": _Key("name", f"structure: one of {protos}", default="required"),
-            "lattice_constant": _Key("quantity", "cube edge / hexagonal a; scales lattice_vectors "
-                                     "for 'explicit'", unit="length", default="required"),
-            "species": _Key("species", "element symbol(s): two for zincblende, rocksalt, "
-                            "cesium-chloride, one otherwise", default="required (prototypes)"),
-            "c_over_a": _Key("number", "c/a ratio of hcp", default=f"{_IDEAL_C_OVER_A:.6g} (ideal)"),
-            "lattice_vectors": _Key("vectors", "rows a1, a2, a3 in units of lattice_constant",
-                                    default="required (explicit)"),
-            "atoms": _Key("atoms", "atoms with species and fractional position",
-                          default="required (explicit)"),
-            "supercell": _Key("integers3", f"repeats along a1, a2, a3 (1 to {_SUPERCELL_MAX})",
-                              default="[1, 1, 1]"),
-        },
-        "pseudopotentials": {},
-        **{name: {} for name in _SETTINGS_SECTIONS},
-        "output": {
-            "result_file": _Key("file", "JSON result document", default="<input stem>.result.json"),
-            "density_file": _Key("file", "density checkpoint", default="<input stem>.density.npz"),
-            "checkpoint_file": _Key("file", "SCF checkpoint for resuming an interrupted run",
-                                    default="<input stem>.checkpoint.npz"),
-            "checkpoint_interval": _Key("integer", "write the SCF checkpoint every this many "
-                                        "iterations", default="1"),
-        },
-    }
-    for fname, (kind, unit, text) in _SETTINGS_DESCRIPTIONS.items():
-        section, key = SETTING_KEYS[fname].split(".")
-        schema[section][key] = _Key(kind, text, unit=unit, field=fname)
-    return schema
-
-
-_SCHEMA = _build_schema()
-_TOP_LEVEL = ("title", *_SCHEMA)
-
-
-def _format_default(spec: _Key) -> Any:
+def _format_default(spec: Setting) -> Any:
     """Default of a settings key as it would be written in an input file."""
     value = _SETTINGS_DEFAULTS[spec.field]
     if value is None:
         return None
     if spec.kind == "quantity":
-        return f"{value:g} {_DEFAULT_UNIT[spec.unit]}"
+        return f"{value:g} {UNIT_TEXT[spec.unit]}"
     return list(value) if isinstance(value, tuple) else value
 
 
@@ -180,7 +176,7 @@ def _default_text(value: Any) -> str:
 
 
 def schema_table() -> tuple[KeyInfo, ...]:
-    """Every accepted input key with its type, unit kind, default and meaning.
+    """Every accepted input key with its type, unit kind, default, range and meaning.
 
     Returns
     -------
@@ -194,24 +190,30 @@ def schema_table() -> tuple[KeyInfo, ...]:
                                 "pseudopotential file; a bare name is looked up beside the "
                                 "input, then among the bundled files"))
         for key, spec in keys.items():
-            default = _default_text(_format_default(spec)) if spec.field else spec.default
-            rows.append(KeyInfo(f"{section}.{key}", _KIND_TEXT[spec.kind] or spec.unit,
-                                spec.unit, default, spec.description))
+            default = _default_text(_format_default(spec)) if spec.field else spec.default_text
+            rows.append(KeyInfo(spec.key, _KIND_TEXT[spec.kind] or spec.unit,
+                                spec.unit, default, spec.meaning, spec.accepted()))
     return tuple(rows)
 
 
 def schema_text(markdown: bool = False) -> str:
     """The schema as a plain-text (or Markdown) table for help screens and the README."""
-    rows = [(r.key, r.type, r.default, r.description) for r in schema_table()]
-    head = ("key", "type", "default", "meaning")
+    rows = [(r.key, r.type, r.default, r.accepted.removeprefix("accepted: "), r.description)
+            for r in schema_table()]
+    head = ("key", "type", "default", "accepted", "meaning")
     if markdown:
         lines = ["| " + " | ".join(head) + " |", "|" + "---|" * len(head)]
         lines += ["| " + " | ".join(f"`{c}`" if i == 0 else c.replace("|", "\\|")
                                     for i, c in enumerate(r)) + " |" for r in rows]
         return "\n".join(lines)
+    lines = []
     widths = [max(len(r[i]) for r in [head, *rows]) for i in range(3)]
     fmt = "  ".join(f"{{:<{w}}}" for w in widths) + "  {}"
-    return "\n".join(fmt.format(*r).rstrip() for r in [head, *rows])
+    for r in [head, *rows]:
+        lines.append(fmt.format(*r[:3], r[4]).rstrip())
+        if r[3] and r is not head:
+            lines.append(" " * (sum(widths) + 6) + f"[{r[3]}]")
+    return "\n".join(lines)
 
 
 @dataclass(frozen=True)
@@ -325,29 +327,13 @@ def parse_input(document: Mapping, *, source: str | None = None,
     return run
 
 
-#: A cell whose FFT grid is this many times larger than that of its reduced
-#: equivalent is refused: the extra grid points cost time and memory for nothing.
-SKEWED_GRID_FACTOR = 2.0
-
-
 def _check_cell_shape(run: RunInput, source: str | None) -> None:
-    """Refuse a cell so skewed that its FFT grid is far larger than an equivalent cell's."""
-    s, lattice = run.settings, run.crystal.lattice
-    if s.fft_grid is not None:
-        return
-    grid = fft_grid_for_cutoff(lattice, s.cutoff)
-    reduced = reduced_lattice(lattice)
-    better = fft_grid_for_cutoff(reduced, s.cutoff)
-    if np.prod(grid) > SKEWED_GRID_FACTOR * np.prod(better):
-        rows = "; ".join("[" + ", ".join(f"{x * BOHR_ANGSTROM:.6f}" for x in r) + "]"
-                         for r in reduced)
-        raise InputError(
-            f"the cell is too skewed for the FFT grid: its vectors need a "
-            f"{'x'.join(map(str, grid))} grid, an equivalent reduced cell only "
-            f"{'x'.join(map(str, better))}; give the reduced lattice vectors (angstrom) "
-            f"{rows} and the atoms in fractional coordinates of that cell",
-            key="crystal.lattice_vectors", value=np.round(lattice * BOHR_ANGSTROM, 6).tolist(),
-            source=source)
+    """Refuse a cell so skewed that its FFT grid is far larger than an equivalent cell's
+    (the check lives with the other pre-run checks, in :mod:`pwsolid.preflight`)."""
+    try:
+        check_cell_shape(run.crystal.lattice, run.settings)
+    except InputError as exc:
+        raise exc.with_source(source) if source else exc from None
 
 
 def _suggest(word: str, candidates) -> str | None:
@@ -404,9 +390,8 @@ class _Reader:
         checkpoint_file = self._output_path(output, "checkpoint_file", f"{stem}.checkpoint.npz")
         interval = 1
         if "checkpoint_interval" in output:
-            interval = self._integer(output["checkpoint_interval"], "output.checkpoint_interval")
-            if not 1 <= interval <= 10000:
-                self.fail("must be between 1 and 10000", "output.checkpoint_interval", interval)
+            interval = self._checked(output["checkpoint_interval"],
+                                     _SCHEMA["output"]["checkpoint_interval"])
         full_echo = {"title": title, "crystal": crystal_echo, "pseudopotentials": pseudo_echo,
                      **echo, "output": {"result_file": str(result_file),
                                         "density_file": str(density_file),
@@ -476,7 +461,7 @@ class _Reader:
     def _quantity(self, value, key, unit) -> float:
         if isinstance(value, (int, float)) and not isinstance(value, bool):
             self.fail(f"must be a string with its unit, e.g. "
-                      f"\"{value:g} {_DEFAULT_UNIT[unit]}\"", key, value)
+                      f"\"{value:g} {UNIT_TEXT[unit]}\"", key, value)
         return parse_quantity(value, unit, key=key, source=self.source)
 
     def _text(self, value, key, what="a string") -> str:
@@ -489,6 +474,40 @@ class _Reader:
         if any(ord(ch) < 32 for ch in text):
             self.fail("file names cannot contain control characters", key, value)
         return text
+
+    def _typed(self, value, spec: Setting):
+        """A value of the TOML type its row declares (ranges are checked by the row)."""
+        dotted = spec.key
+        if value is None and spec.automatic:
+            return None
+        if spec.kind == "quantity":
+            return self._quantity(value, dotted, spec.unit)
+        if spec.kind == "integer":
+            return self._integer(value, dotted)
+        if spec.kind == "number":
+            return self._number(value, dotted)
+        if spec.kind == "boolean":
+            if not isinstance(value, bool):
+                self.fail("must be a TOML boolean: true or false (no quotes)", dotted, value)
+            return value
+        if spec.kind == "name":
+            return self._text(value, dotted, "a name string, e.g. \"lda-pz81\"")
+        if spec.kind == "file":
+            return self._file_text(value, dotted)
+        return self._triple(value, dotted, integers=spec.kind != "numbers3")
+
+    def _checked(self, value, spec: Setting):
+        """Read ``value`` as ``spec`` declares and check it against the row's range."""
+        parsed = self._typed(value, spec)
+        try:
+            return spec.check(parsed)
+        except InputError as exc:     # echo the value as the user wrote it (with its unit)
+            self.fail(exc.reason, spec.key, value)
+
+    def table_values(self, table: Mapping, section: str) -> dict[str, Any]:
+        """Checked values of the keys present in ``table`` (for tables of plain values)."""
+        return {key: self._checked(table[key], spec) for key, spec in _SCHEMA[section].items()
+                if key in table}
 
     # -- sections ------------------------------------------------------------
     def _crystal(self, table: Mapping) -> tuple[Crystal, dict]:
@@ -505,10 +524,7 @@ class _Reader:
             self.fail(f"unknown prototype; {hint}valid prototypes: {', '.join(valid)}",
                       "crystal.prototype", proto)
         a_text = need("lattice_constant")
-        a = self._quantity(a_text, "crystal.lattice_constant", "length")
-        lo, hi = _LATTICE_RANGE_BOHR
-        if math.isfinite(a) and a > 0 and not lo <= a <= hi:
-            self.fail(f"must lie between {lo} and {hi} bohr", "crystal.lattice_constant", a_text)
+        a = self._checked(a_text, _SCHEMA["crystal"]["lattice_constant"])
         echo: dict[str, Any] = {"prototype": proto, "lattice_constant": a_text}
 
         only_explicit = ("lattice_vectors", "atoms")
@@ -526,10 +542,7 @@ class _Reader:
 
         supercell = (1, 1, 1)
         if "supercell" in table:
-            supercell = self._triple(table["supercell"], "crystal.supercell", integers=True)
-            if any(not 1 <= n <= _SUPERCELL_MAX for n in supercell):
-                self.fail(f"each repeat must be an integer from 1 to {_SUPERCELL_MAX}",
-                          "crystal.supercell", table["supercell"])
+            supercell = self._checked(table["supercell"], _SCHEMA["crystal"]["supercell"])
         try:
             with np.errstate(all="ignore"):     # overflow shows up as a range error instead
                 if proto == _EXPLICIT:
@@ -571,9 +584,7 @@ class _Reader:
         if proto == "hcp":
             c_over_a = _IDEAL_C_OVER_A
             if "c_over_a" in table:
-                c_over_a = self._number(table["c_over_a"], "crystal.c_over_a", "a positive number")
-                if c_over_a > _C_OVER_A_MAX:
-                    self.fail(f"must be at most {_C_OVER_A_MAX}", "crystal.c_over_a", c_over_a)
+                c_over_a = self._checked(table["c_over_a"], _SCHEMA["crystal"]["c_over_a"])
         return tuple(items), c_over_a
 
     def _explicit(self, table, need):
@@ -634,24 +645,10 @@ class _Reader:
                     kwargs[spec.field] = None     # an echo of an automatic choice
                     echo[section][key] = None
                     continue
-                if spec.kind == "quantity":
-                    parsed = self._quantity(value, dotted, spec.unit)
-                elif spec.kind == "integer":
-                    parsed = self._integer(value, dotted)
-                elif spec.kind == "number":
-                    parsed = self._number(value, dotted)
-                elif spec.kind == "boolean":
-                    if not isinstance(value, bool):
-                        self.fail("must be a TOML boolean: true or false (no quotes)", dotted, value)
-                    parsed = value
-                elif spec.kind == "name":
-                    parsed = self._text(value, dotted, "a name string, e.g. \"lda-pz81\"")
-                elif spec.kind == "grid" and value is None:
-                    parsed = None     # an echo of an automatic grid
-                else:
-                    parsed = self._triple(value, dotted, integers=spec.kind != "numbers3")
                 if spec.field == "functional":
-                    parsed = self._functional(parsed, dotted)
+                    parsed = self._functional(self._typed(value, spec), dotted)
+                else:
+                    parsed = self._checked(value, spec)
                 kwargs[spec.field] = parsed
                 echo[section][key] = list(value) if isinstance(value, tuple) else value
         return kwargs, echo
@@ -710,4 +707,16 @@ class _Reader:
 
     def _output_path(self, table: Mapping, key: str, default: str) -> Path:
         text = self._file_text(table[key], f"output.{key}") if key in table else default
-        return self.base_dir / Path(text).expanduser()
+        return self._output_base() / Path(text).expanduser()
+
+    def _output_base(self) -> Path:
+        """Relative output names are taken from the input's folder, except for the bundled
+        example inputs: their results go to the working directory, never among the examples."""
+        try:
+            examples = inputs_dir().resolve()
+            folder = self.base_dir.resolve()
+        except OSError:
+            return self.base_dir
+        if folder == examples or examples in folder.parents:
+            return Path.cwd()
+        return self.base_dir

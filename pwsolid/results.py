@@ -71,7 +71,7 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
             "full_mesh_size": int(setup.kpoints.full_mesh_size),
         },
         "eigenvalues_eV": (gs.eigenvalues[:nk] * HARTREE_EV).tolist(),
-        "occupations": gs.occupations[:nk].tolist(),
+        "occupations": _occupations(gs)[:nk].tolist(),
         "spin": _spin_block(gs, nk),
         "basis": {
             "cutoff_Ha": setup.settings.cutoff,
@@ -122,18 +122,28 @@ def _band_edges(gs: GroundState, kf: np.ndarray) -> dict | None:
     }
 
 
+def _occupations(gs: GroundState) -> np.ndarray:
+    """Electrons per state as the documents report them: 0..2 per spatial orbital without
+    spin polarisation, 0..1 per spin-orbital with it (the SCF keeps 0..2 in every channel
+    and carries the 1/2 in the channel weights), so that sum_k w_k sum_n f_nk over the
+    channels is the electron count in both cases."""
+    occ = np.asarray(gs.occupations, float)
+    return occ if gs.spin_densities is None else 0.5 * occ
+
+
 def _spin_block(gs: GroundState, nk: int) -> dict:
     """Spin-polarised runs: the moments and the down-spin eigenvalues (eigenvalues_eV and
-    occupations above are then the up-spin channel)."""
+    occupations above are then the up-spin channel; occupations per spin-orbital, 0..1)."""
     if gs.spin_densities is None:
         return {"polarized": False}
     return {
         "polarized": True,
+        "occupation_convention": "electrons per spin-orbital (0 to 1) in each spin channel",
         "magnetization": gs.magnetization,
         "absolute_magnetization": gs.absolute_magnetization,
         "fixed_moment": gs.settings.fixed_moment,
         "eigenvalues_down_eV": (gs.eigenvalues[nk:] * HARTREE_EV).tolist(),
-        "occupations_down": gs.occupations[nk:].tolist(),
+        "occupations_down": _occupations(gs)[nk:].tolist(),
     }
 
 

@@ -17,8 +17,7 @@ from typing import Callable
 
 import numpy as np
 
-from . import xc as _xc
-from .basis import (PlaneWaveSet, density_sphere, fft_grid_for_cutoff, grid_g_vectors, make_basis,
+from .basis import (PlaneWaveSet, density_sphere, grid_g_vectors, make_basis,
                     transfer_coefficients)
 from .crystal import Crystal
 from .eigensolver import davidson, dense_lowest_eigenpairs
@@ -29,41 +28,22 @@ from .checkpoint import load_checkpoint, save_checkpoint
 from .errors import ConvergenceError, ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, core_density, kinetic_preconditioner, local_potential
-from .kpoints import KPointSet, irreducible_kpoints, join_by_full_symmetry
+from .kpoints import KPointSet, join_by_full_symmetry
 from .mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
 from .parallel import (SerialCommunicator, distribute, fft_threads_for, single_threaded_blas,
                        world)
 from .occupations import (TOP_BAND_CHARGE_LIMIT, BandEdges, SmearingResult, aufbau_occupations,
                           band_edges, highest_band_charge, smeared_occupations, smearing_scheme)
+from .preflight import load_pseudopotentials, plan_ground_state
 from .pseudo import nonlocal_operator
-from .pseudo import (Pseudopotential, default_pseudopotential_file, load_pseudopotential,
-                     resolve_pseudopotential)
 from .settings import GroundStateSettings
-from .symmetry import SymmetryOperations, find_symmetry, identity_only, make_density_symmetrizer
+from .symmetry import SymmetryOperations, make_density_symmetrizer
 
 __all__ = ["SystemSetup", "SCFState", "GroundState", "WavefunctionStart", "prepare", "scf_step",
            "ground_state",
            "load_pseudopotentials", "effective_potential", "bands_at_kpoints"]
 
 Log = Callable[[str], None]
-
-
-def load_pseudopotentials(species, choices) -> dict[str, Pseudopotential]:
-    """One Pseudopotential per species: given objects, given files, or the bundled default."""
-    out = {}
-    for s in dict.fromkeys(species):
-        choice = choices.get(s)
-        if isinstance(choice, Pseudopotential):
-            pp = choice
-        else:
-            path = (default_pseudopotential_file(s) if choice is None
-                    else resolve_pseudopotential(s, choice))
-            pp = load_pseudopotential(path)
-        if pp.element != s:
-            raise InputError(f"the file is for element {pp.element}, not {s}",
-                             key=f"pseudopotentials.{s}", value=str(pp.source_file))
-        out[s] = pp
-    return out
 
 
 def _nonlocal(crystal: Crystal, pps: dict, basis: PlaneWaveSet):
@@ -73,13 +53,6 @@ def _nonlocal(crystal: Crystal, pps: dict, basis: PlaneWaveSet):
     if not atoms:
         return None, None
     return nonlocal_operator(basis.kpg, atoms, crystal.volume)
-
-
-def _symmetry_of(crystal: Crystal) -> SymmetryOperations:
-    """Space group of the crystal; a cell without atoms (jellium) has its lattice's symmetry."""
-    if crystal.n_atoms:
-        return find_symmetry(crystal)
-    return find_symmetry(Crystal(crystal.lattice, ("H",), [[0.0, 0.0, 0.0]]))
 
 
 @dataclass(frozen=True, eq=False)
@@ -145,37 +118,13 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
     ``local_pseudopotential`` term.
     """
     comm = comm if comm is not None else world()
-    n_spin = 2 if (settings or GroundStateSettings()).spin_polarized else 1
     settings = settings or GroundStateSettings()
-    pps = load_pseudopotentials(crystal.species, settings.pseudopotentials)
-    functional = _xc.get_functional(settings.functional)
-    n_el = float(sum(pps[s].valence for s in crystal.species)) + settings.background_electrons
-    if n_el <= 0:
-        raise InputError("the cell holds no electrons: add atoms or background electrons",
-                         key="crystal", value=n_el)
-    symmetry = _symmetry_of(crystal) if settings.use_symmetry else identity_only()
-    k_list = irreducible_kpoints(settings.kpoint_mesh, settings.kpoint_shift,
-                               symmetry if settings.use_symmetry else None,
-                               time_reversal=settings.use_symmetry)
-    if settings.use_symmetry:
-        # a mesh the full group does not keep: symmetrise with the full group anyway
-        k_list = join_by_full_symmetry(k_list, symmetry)
-    grid = settings.fft_grid or fft_grid_for_cutoff(crystal.lattice, settings.cutoff)
-    try:
-        bases = [make_basis(crystal.lattice, k, settings.cutoff, grid) for k in k_list.fractional]
-    except ValueError as exc:
-        raise InputError(f"{exc}; use a larger grid or remove the setting",
-                         key="basis.fft_grid", value=list(grid)) from None
-    n_occ = int(np.ceil(n_el / 2 - 1e-8))
-    empty = settings.empty_bands
-    if empty is None:
-        empty = 4 if settings.smearing == "none" else 4 + int(np.ceil(0.2 * n_occ))
-    n_bands = n_occ + empty
-    smallest = min(b.size for b in bases)
-    if n_bands > smallest:
-        raise InputError(f"{n_bands} bands need at least as many plane waves, but a k-point has "
-                         f"only {smallest}; raise the cutoff", key="basis.cutoff",
-                         value=settings.cutoff)
+    n_spin = 2 if settings.spin_polarized else 1
+    # every check before the first iteration lives in the plan (check-input runs it too)
+    plan = plan_ground_state(crystal, settings, join_kpoints=join_by_full_symmetry)
+    pps, functional, n_el = plan.pseudopotentials, plan.functional, plan.n_electrons
+    symmetry, k_list, grid, bases, n_bands = (plan.symmetry, plan.kpoints, plan.grid,
+                                              plan.bases, plan.n_bands)
     g = grid_g_vectors(crystal.lattice, grid)
     g2 = np.einsum("...i,...i->...", g, g)
     forms = {s: pp.local for s, pp in pps.items()}

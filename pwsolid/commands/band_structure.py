@@ -29,12 +29,11 @@ from pathlib import Path
 import numpy as np
 
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK, InputError
+from .common import (check_output_dir, check_output_file, parse_formats, parse_int, parse_window,
+                     plan_run, progress_for, save_figures, write_or_keep)
 from ..units import HARTREE_EV, parse_quantity
 
-__all__ = ["register", "run", "run_empirical", "parse_int", "parse_formats", "parse_window",
-           "matching_density", "load_or_compute_density", "progress_for"]
-
-_FORMATS = ("png", "svg", "pdf")
+__all__ = ["register", "run", "run_empirical", "matching_density", "load_or_compute_density"]
 
 
 def register(subparsers) -> None:
@@ -97,70 +96,8 @@ def _output_options(p, where: str) -> None:
     p.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
-# -- option parsing (bad values are InputErrors: exit code 3) ---------------------------
-
-def parse_int(text, option: str, *, minimum: int = 1, maximum: int | None = None) -> int:
-    """A whole number within bounds, from the command line."""
-    try:
-        value = int(str(text).strip())
-    except ValueError:
-        raise InputError("must be a whole number", key=option, value=text) from None
-    if value < minimum or (maximum is not None and value > maximum):
-        bound = f"between {minimum} and {maximum}" if maximum is not None else f"at least {minimum}"
-        raise InputError(f"must be {bound}", key=option, value=text)
-    return value
-
-
-def parse_formats(text, option: str = "--formats") -> tuple[str, ...]:
-    """'png,svg' -> ('png', 'svg'); only png, svg and pdf are accepted."""
-    items = tuple(dict.fromkeys(t.strip().lower().lstrip(".") for t in str(text).split(",")
-                                if t.strip()))
-    bad = [t for t in items if t not in _FORMATS]
-    if not items or bad:
-        raise InputError(f"figure formats are a comma-separated list from {', '.join(_FORMATS)}",
-                         key=option, value=text)
-    return items
-
-
-def parse_window(text, option: str = "--window"):
-    """'-13,8' -> (-13.0, 8.0) (eV); None stays None."""
-    if text is None:
-        return None
-    parts = [t.strip().removesuffix("eV").strip() for t in str(text).split(",")]
-    try:
-        low, high = (float(t) for t in parts)
-    except ValueError:
-        raise InputError("must be two energies in eV, LOW,HIGH, e.g. --window=-13,8",
-                         key=option, value=text) from None
-    if not (np.isfinite(low) and np.isfinite(high) and low < high):
-        raise InputError("needs LOW < HIGH (eV)", key=option, value=text)
-    return low, high
-
-
 def _output_dir(args, default: Path) -> Path:
-    out = Path(args.output_dir) if args.output_dir else default
-    if out.exists() and not out.is_dir():
-        raise InputError("is not a directory", key="--output-dir", value=str(out))
-    return out
-
-
-def progress_for(args, label: str):
-    """A progress bar over k-points (None with --quiet); off a terminal it reports
-    about twenty times rather than at every point."""
-    if args.quiet:
-        return None
-    from ..progress import ProgressBar
-
-    bar = ProgressBar(label)
-    if getattr(bar, "_tty", False):
-        return bar
-
-    def report(done, total):
-        step = max(1, total // 20)
-        if done == total or done % step == 0:
-            bar(done, total)
-
-    return report
+    return check_output_dir(Path(args.output_dir) if args.output_dir else default)
 
 
 # -- density ---------------------------------------------------------------------------
@@ -241,10 +178,15 @@ def run(args) -> int:
     formats = parse_formats(args.formats)
     window = parse_window(args.window)
     run_input = load_input(args.input)
-    # Check the path before any ground state runs.
-    path = user_path(run_input.crystal, args.path) if args.path else None
+    # Check the path and every output location before any ground state runs.
+    path_text = _checked_path_text(args.path)
+    path = user_path(run_input.crystal, path_text) if path_text else None
     out = _output_dir(args, Path(run_input.result_file).parent)
     stem = out / Path(args.input).stem
+    check_output_file(stem.with_name(stem.name + ".bands.json"), "--output-dir")
+    if not args.density_file and not Path(run_input.density_file).exists():
+        check_output_file(run_input.density_file, "output.density_file")
+    plan_run(run_input)
 
     say = print
     say(run_input.title or Path(args.input).name)
@@ -282,8 +224,10 @@ def run_empirical(args) -> int:
     if name is None:
         raise InputError(f"no empirical form factors for this material; choose one of "
                          f"{', '.join(EMPIRICAL_MATERIALS)}", key="material", value=args.material)
+    path_text = _checked_path_text(args.path)
     out = _output_dir(args, Path.cwd())
-    bs = empirical_band_structure(name, args.path, cutoff=cutoff, n_points=n_points,
+    check_output_file(out / f"{name.lower()}-empirical.bands.json", "--output-dir")
+    bs = empirical_band_structure(name, path_text, cutoff=cutoff, n_points=n_points,
                                   n_bands=n_bands, progress=progress_for(args, "bands"))
     written = _write_outputs(bs, None, out / f"{name.lower()}-empirical", formats, window)
     print(bs.title)
@@ -296,20 +240,31 @@ def _write_outputs(bs, dos, stem: Path, formats, window) -> list[Path]:
     from ..plots.bands import BandStructurePlot
     from ..results import write_json
 
-    stem.parent.mkdir(parents=True, exist_ok=True)
-    json_path = stem.with_name(stem.name + ".bands.json")
-    write_json(json_path, bs.as_document())
-    written = [json_path, bs.to_csv(stem.with_name(stem.name + ".bands.csv"))]
-    if dos is not None:
-        dos_json = stem.with_name(stem.name + ".dos.json")
-        write_json(dos_json, dos.as_document())
-        written += [dos_json, dos.to_csv(stem.with_name(stem.name + ".dos.csv"))]
+    def named(suffix):
+        return stem.with_name(stem.name + suffix)
+
     try:
         plot = BandStructurePlot.from_result(bs, dos, window=window)
     except ValueError as exc:
         raise InputError(str(exc), key="--window", value=window) from None
-    written += plot.save(stem.with_name(stem.name + ".bands"), formats)
+    written = [write_or_keep(named(".bands.json"), lambda p: write_json(p, bs.as_document()),
+                             "band structure"),
+               write_or_keep(named(".bands.csv"), bs.to_csv, "band table")]
+    if dos is not None:
+        written += [write_or_keep(named(".dos.json"), lambda p: write_json(p, dos.as_document()),
+                                  "density of states"),
+                    write_or_keep(named(".dos.csv"), dos.to_csv, "density-of-states table")]
+    written += save_figures(plot, named(".bands"), formats)
     return written
+
+
+def _checked_path_text(text):
+    """``--path`` as given; an empty one is a mistake, not a request for the default."""
+    if text is not None and not str(text).strip():
+        raise InputError("is empty; give special points such as \"G-X-W-K-G-L\", or leave the "
+                         "option out for the standard path of the lattice", key="--path",
+                         value=text)
+    return text
 
 
 def _report(bs, dos) -> str:

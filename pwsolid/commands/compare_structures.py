@@ -17,8 +17,8 @@ import sys
 from pathlib import Path
 
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK, InputError
-from .equation_of_state import (add_scan_options, output_directory, parse_count,
-                                parse_fraction, scan_failed)
+from .common import (EXIT_INTERRUPTED, add_scan_options, check_output_file, output_directory,
+                     parse_count, parse_fraction, plan_run, scan_failed, write_or_keep)
 
 __all__ = ["register", "run"]
 
@@ -61,17 +61,27 @@ def run(args) -> int:
     first = next(iter(runs.values()))
     out_dir = output_directory(args, first)
     stores = {name: out_dir / f"{name}.eos-points.json" for name in runs}
-    bar = None if args.quiet else ProgressBar("structures")
-    result = compare_structures({n: r.crystal for n, r in runs.items()},
-                                {n: r.settings for n, r in runs.items()},
-                                progress=bar, stores=stores, volume_range=volume_range,
-                                n_points=n_points)
-    doc = result.as_document()
-    doc["inputs"] = {n: r.echo for n, r in runs.items()}
     path = Path(args.result_file)
     path = path if path.is_absolute() else out_dir / path
+    check_output_file(path, "--result-file")
+    for store in stores.values():
+        check_output_file(store, "--output-dir")
+    for r in runs.values():
+        plan_run(r, times=n_points)
+    bar = None if args.quiet else ProgressBar("structures")
+    try:
+        result = compare_structures({n: r.crystal for n, r in runs.items()},
+                                    {n: r.settings for n, r in runs.items()},
+                                    progress=bar, stores=stores, volume_range=volume_range,
+                                    n_points=n_points)
+    except KeyboardInterrupt:
+        print(f"\npwsolid: interrupted; finished volumes are kept in {out_dir}/*.eos-points.json:"
+              " run the same command again to resume", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    doc = result.as_document()
+    doc["inputs"] = {n: r.echo for n, r in runs.items()}
     if getattr(args, "writes_files", True):      # MPI: only process 0 writes
-        write_json(path, doc)
+        path = write_or_keep(path, lambda p: write_json(p, doc), "comparison")
     print(f"\n  {'rank':<5}{'candidate':<24}{'E - E_lowest':>14}{'V0/atom':>11}{'B0':>9}"
           f"{'B0prime':>9}")
     print(f"  {'':<5}{'':<24}{'(meV/atom)':>14}{'(A^3)':>11}{'(GPa)':>9}{'':>9}")

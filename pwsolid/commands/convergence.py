@@ -18,7 +18,7 @@ from pathlib import Path
 
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK, InputError
 from ..units import BOHR_ANGSTROM, HARTREE_EV, parse_quantity
-from .equation_of_state import output_directory
+from .common import check_output_file, output_directory, plan_run, save_figures, write_or_keep
 
 __all__ = ["register", "run", "parse_cutoffs", "parse_meshes"]
 
@@ -125,6 +125,8 @@ def run(args) -> int:
     run_input = load_input(args.input)
     stem = Path(args.input).stem
     out_dir = output_directory(args, run_input)
+    json_path = check_output_file(out_dir / f"{stem}.convergence.json", "--output-dir")
+    plan_run(run_input)
     bar = None if args.quiet else ProgressBar("settings")
     study = converge_settings(run_input.crystal, run_input.settings, cutoffs=cutoffs,
                               meshes=meshes, energy_precision=e_prec, lattice_precision=a_prec,
@@ -132,12 +134,11 @@ def run(args) -> int:
     doc = study.as_document()
     doc["title"] = run_input.title
     doc["input"] = run_input.echo
-    json_path = out_dir / f"{stem}.convergence.json"
     figures = []
     if getattr(args, "writes_files", True):      # MPI: only process 0 writes
-        write_json(json_path, doc)
-        figures = ConvergencePlot.from_study(study, title=run_input.title).save(
-            out_dir / f"{stem}.convergence")
+        json_path = write_or_keep(json_path, lambda p: write_json(p, doc), "convergence study")
+        figures = save_figures(ConvergencePlot.from_study(study, title=run_input.title),
+                               out_dir / f"{stem}.convergence")
     prec = f"{e_prec * HARTREE_EV * 1e3:g} meV/atom"
     if study.with_lattice:
         prec += f" and {a_prec * BOHR_ANGSTROM:g} angstrom"

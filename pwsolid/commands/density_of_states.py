@@ -23,8 +23,9 @@ from pathlib import Path
 
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK, InputError
 from ..units import HARTREE_EV, parse_quantity
-from .band_structure import (load_or_compute_density, parse_formats, parse_int, parse_window,
-                             progress_for)
+from .band_structure import load_or_compute_density
+from .common import (check_output_dir, check_output_file, parse_formats, parse_int, parse_window,
+                     plan_run, progress_for, save_figures, write_or_keep)
 
 __all__ = ["register", "run"]
 
@@ -98,10 +99,13 @@ def run(args) -> int:
     formats = parse_formats(args.formats)
     window = parse_window(args.window)
     run_input = load_input(args.input)
-    out = Path(args.output_dir) if args.output_dir else Path(run_input.result_file).parent
-    if out.exists() and not out.is_dir():
-        raise InputError("is not a directory", key="--output-dir", value=str(out))
+    out = check_output_dir(Path(args.output_dir) if args.output_dir
+                           else Path(run_input.result_file).parent)
     stem = out / f"{Path(args.input).stem}.dos"
+    check_output_file(stem.with_name(stem.name + ".json"), "--output-dir")
+    if not args.density_file and not Path(run_input.density_file).exists():
+        check_output_file(run_input.density_file, "output.density_file")
+    plan_run(run_input)
 
     print(run_input.title or Path(args.input).name)
     setup, density, gs, problem = load_or_compute_density(run_input, args.density_file, print)
@@ -110,15 +114,15 @@ def run(args) -> int:
                                method=method, width=width, n_bands=n_bands,
                                progress=progress_for(args, "DOS mesh"),
                                title=run_input.title)
-    out.mkdir(parents=True, exist_ok=True)
-    json_path = stem.with_name(stem.name + ".json")
-    write_json(json_path, result.as_document())
-    written = [json_path, result.to_csv(stem.with_name(stem.name + ".csv"))]
     try:
         plot = DensityOfStatesPlot.from_result(result, window=window)
     except ValueError as exc:
         raise InputError(str(exc), key="--window", value=args.window) from None
-    written += plot.save(stem, formats)
+    written = [write_or_keep(stem.with_name(stem.name + ".json"),
+                             lambda p: write_json(p, result.as_document()), "density of states"),
+               write_or_keep(stem.with_name(stem.name + ".csv"), result.to_csv,
+                             "density-of-states table")]
+    written += save_figures(plot, stem, formats)
 
     ev = HARTREE_EV
     print(f"\nDensity of states ({result.method}"

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import sys
 from pathlib import Path
 
 from ..errors import EXIT_OK, InputError
+from .common import check_output_dir, parse_positive, write_or_keep
 
 __all__ = ["register", "run"]
 
@@ -40,6 +42,8 @@ def run(args) -> int:
     from ..results import write_json
     from ..workflows.density_response import static_response
 
+    parse_positive(args.rs, "--rs", "bohr")
+    out = check_output_dir(Path(args.output_dir))
     harmonics = _ints(args.harmonics, "--harmonics")
     mesh = _ints(args.mesh, "--mesh", 3)
     if max(harmonics) >= 6 * 10:
@@ -52,9 +56,9 @@ def run(args) -> int:
         print(f"  {p.q / result.k_fermi:>6.3f} {p.measured:>12.6f} {p.theory:>13.6f} "
               f"{p.random_phase:>12.6f} {100 * p.relative_error:>7.2f}%")
     if getattr(args, "writes_files", True):
-        out = Path(args.output_dir)
         stem = out / f"density-response-rs{result.rs:g}"
-        write_json(Path(f"{stem}.json"), result.as_document())
+        json_path = write_or_keep(Path(f"{stem}.json"),
+                                  lambda p: write_json(p, result.as_document()), "response")
         fig, ax = new_axes(figsize=(5.4, 3.6))
         x = [p.q / result.k_fermi for p in result.points]
         ax.plot(x, [-p.theory for p in result.points], label="Lindhard + Hartree + f_xc")
@@ -63,6 +67,10 @@ def run(args) -> int:
         ax.set_xlabel("q / k_F")
         ax.set_ylabel("-chi(q) (bohr^-3 / Ha)")
         ax.legend()
-        save_figure(fig, stem)
-        print(f"Written: {stem}.json, .png, .svg")
+        try:
+            save_figure(fig, stem)
+        except OSError as exc:
+            print(f"pwsolid: could not write the figure {stem}.* ({exc.strerror or exc})",
+                  file=sys.stderr)
+        print(f"Written: {json_path}, {stem}.png, .svg")
     return EXIT_OK

@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from ..errors import EXIT_OK, InputError
+from .common import check_output_dir, parse_positive, save_figures, write_or_keep
 
 __all__ = ["register", "run"]
 
@@ -29,6 +30,9 @@ def run(args) -> int:
     from ..results import write_json
     from ..workflows.jellium import jellium_convergence
 
+    parse_positive(args.rs, "--rs", "bohr")
+    parse_positive(args.electrons, "--electrons")
+    out = check_output_dir(Path(args.output_dir))
     try:
         meshes = tuple(int(x) for x in args.meshes.split(","))
     except ValueError:
@@ -46,9 +50,9 @@ def run(args) -> int:
     for m, e, d in zip(study.meshes, study.energies, study.errors):
         print(f"  {m:>6} {e:>14.8f} {1e3 * d:>12.5f}")
     if getattr(args, "writes_files", True):
-        out = Path(args.output_dir)
         stem = out / f"jellium-rs{study.rs:g}"
-        write_json(stem.with_name(stem.name + ".json"), study.as_document())
-        JelliumPlot.from_study(study).save(stem.with_name(stem.name + ".jellium"))
-        print(f"Written: {stem}.json and plots")
+        json_path = write_or_keep(stem.with_name(stem.name + ".json"),
+                                  lambda p: write_json(p, study.as_document()), "jellium study")
+        save_figures(JelliumPlot.from_study(study), stem.with_name(stem.name + ".jellium"))
+        print(f"Written: {json_path} and plots")
     return EXIT_OK

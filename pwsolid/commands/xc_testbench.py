@@ -15,6 +15,7 @@ import textwrap
 from pathlib import Path
 
 from ..errors import EXIT_OK, InputError
+from .common import check_output_dir, save_figures, write_or_keep
 from ..units import HARTREE_EV
 
 __all__ = ["register", "run"]
@@ -61,6 +62,14 @@ def _numbers(text: str, option: str) -> list[float]:
         raise InputError("expected comma-separated positive numbers, e.g. 1,2,5",
                          key=option, value=text)
     return values
+
+
+def _functional(load, spec, option: str):
+    """A functional loaded by ``load``; a bad name or file is reported under ``option``."""
+    try:
+        return load(spec)
+    except InputError as exc:
+        raise InputError(exc.reason, key=option, value=spec) from None
 
 
 def _slug(name: str) -> str:
@@ -130,14 +139,14 @@ def run(args) -> int:
     from ..xc import get_functional, load_user_functional
 
     rs_printed = _numbers(args.rs, "--rs")
+    output = check_output_dir(Path(args.output_dir))
     compare = [name.strip() for name in args.compare.split(",") if name.strip()]
-    references = [get_functional(name) for name in compare]
-    subjects = [get_functional(spec) for spec in args.functionals]
-    subjects += [load_user_functional(path) for path in args.user_file]
+    references = [_functional(get_functional, name, "--compare") for name in compare]
+    subjects = [_functional(get_functional, spec, "FUNCTIONAL") for spec in args.functionals]
+    subjects += [_functional(load_user_functional, path, "--user-file") for path in args.user_file]
     if not subjects:
         subjects = [get_functional(_DEFAULT_FUNCTIONAL)]
     rs_table = sorted(set(DEFAULT_RS) | set(rs_printed))
-    output = Path(args.output_dir)
 
     for functional in subjects:
         report = testbench_report(functional, references, rs_values=rs_table,
@@ -152,13 +161,13 @@ def run(args) -> int:
             print("\n".join(block))
             print()
         stem = output / f"{_slug(functional.name)}-uniform-gas"
-        json_path = stem.with_suffix(".json")
-        write_json(json_path, report.as_document())
+        json_path = write_or_keep(stem.with_suffix(".json"),
+                                  lambda p: write_json(p, report.as_document()), "testbench report")
         written = [json_path]
         if not args.no_plots:
             from ..plots.xc import UniformGasPlot
 
-            written += UniformGasPlot.from_report(report).save(stem)
+            written += save_figures(UniformGasPlot.from_report(report), stem)
         print("  Written: " + ", ".join(str(p) for p in written))
         print()
     return EXIT_OK

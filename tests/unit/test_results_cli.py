@@ -95,3 +95,31 @@ def test_density_checkpoint_refuses_corruption(small_input, tmp_path):
     (tmp_path / "junk.npz").write_bytes(b"not an archive")
     with pytest.raises(InputError, match="junk.npz"):
         load_density(tmp_path / "junk.npz")
+
+
+@pytest.mark.parametrize("moment", [2.0, None])
+def test_spin_polarised_documents_count_each_electron_once(moment):
+    # issue 15: occupations of both spin channels, weighted by the k-point weights, sum to
+    # the electron count (they were 0..2 per state in each channel, twice the count)
+    import warnings
+
+    from pwsolid.crystal import diamond
+    from pwsolid.results import ground_state_document
+    from pwsolid.scf import ground_state
+    from pwsolid.settings import GroundStateSettings
+
+    settings = GroundStateSettings(cutoff=4.0, kpoint_mesh=(2, 2, 2), kpoint_shift=(0, 0, 0),
+                                   spin_polarized=True, fixed_moment=moment,
+                                   initial_moment=1.0, smearing="fermi-dirac",
+                                   smearing_width=0.02, max_iterations=3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")        # three iterations do not converge
+        gs = ground_state(diamond(10.26, "Si"), settings)
+    doc = ground_state_document(gs)
+    w = np.array(doc["kpoints"]["weights"])
+    up = np.array(doc["occupations"]).sum(axis=1)
+    down = np.array(doc["spin"]["occupations_down"]).sum(axis=1)
+    assert np.all(np.array(doc["occupations"]) <= 1 + 1e-12)
+    assert w @ (up + down) == pytest.approx(doc["electrons_per_cell"], abs=1e-8)
+    if moment is not None:
+        assert w @ (up - down) == pytest.approx(moment, abs=1e-8)

@@ -114,7 +114,10 @@ CASES = [
     ("huge lattice constant", proto("fcc", '"Al"', a='"1e5 bohr"'), "crystal.lattice_constant",
      "between 0.5 and 1000.0 bohr"),
     ("negative c/a", proto("hcp", '"Ti"', extra="c_over_a = -1.6\n"), "crystal.c_over_a",
-     "positive length"),
+     "positive number (the ratio c/a)"),
+    # the value is echoed as typed, in the user's unit (issue 15)
+    ("negative lattice constant echoed as typed", proto("fcc", '"Al"', a='"-4.05 angstrom"'),
+     "crystal.lattice_constant", "(got '-4.05 angstrom')"),
     # species and prototypes
     ("one species for zincblende", proto("zincblende", '["Ga"]'), "crystal.species",
      "prototype 'zincblende' takes 2 species (1 given)"),
@@ -267,3 +270,157 @@ def test_invalid_toml_reports_line_and_column(tmp_path, text, where):
     message = str(err.value)
     assert "invalid TOML" in message and where in message and "column" in message
     assert str(path) in message
+
+
+# -- checks that need the pseudopotentials: check-input and the run refuse them alike ------
+# (issue 15: check-input used to pass these files and the run then failed.) Silicon has
+# 8 valence electrons per two-atom cell.
+SPIN = CRYSTAL + "[spin]\npolarized = true\n"
+RUN_CASES = [
+    ("fixed moment above the electron count", SPIN + "fixed_moment = 100.0\n",
+     "spin.fixed_moment", "cannot exceed the 8 valence electrons"),
+    ("negative fixed moment above the electron count", SPIN + "fixed_moment = -9.0\n",
+     "spin.fixed_moment", "accepted: -8 to 8"),
+    ("initial moment above the electron count", SPIN + "initial_moment = 50\n",
+     "spin.initial_moment", "cannot exceed the 8 valence electrons"),
+    ("fft grid too small for the basis", CRYSTAL + "[basis]\nfft_grid = [4, 4, 4]\n",
+     "basis.fft_grid", "too small for the basis"),
+    ("more bands than plane waves", CRYSTAL + '[basis]\ncutoff = "0.5 Ha"\n'
+     "[brillouin_zone]\nmesh = [1, 1, 1]\nshift = [0, 0, 0]\n", "basis.cutoff",
+     "raise the cutoff"),
+    ("cutoff beyond the memory of the machine", CRYSTAL + '[basis]\ncutoff = "5000 Ha"\n',
+     "basis.cutoff", "does not fit the memory of this machine: estimated memory"),
+]
+
+
+@pytest.fixture
+def small_memory(monkeypatch):
+    # a machine of 4 GB free: the 5000 Ha case needs tens of GB (issue 15) on any machine
+    import pwsolid.preflight
+
+    monkeypatch.setattr(pwsolid.preflight, "available_memory", lambda: 4e9)
+
+
+@pytest.mark.parametrize("text, key, fragment", [c[1:] for c in RUN_CASES],
+                         ids=[c[0] for c in RUN_CASES])
+def test_check_input_refuses_what_the_run_refuses(tmp_path, capsys, small_memory, text, key,
+                                                  fragment):
+    from pwsolid.cli import main
+    from pwsolid.scf import prepare
+
+    path = tmp_path / "coating-trial.toml"
+    path.write_text(text)
+    assert main(["check-input", str(path)]) == 3
+    err = capsys.readouterr().err
+    assert fragment in err and f"'{key}'" in err and "Traceback" not in err
+    run = load_input(path)
+    with pytest.raises(InputError) as error:
+        prepare(run.crystal, run.settings)
+    assert error.value.key == key and fragment in str(error.value)
+
+
+def test_fully_polarised_silicon_is_accepted_and_gets_enough_bands():
+    # |M| = N is the largest moment: every electron in the up channel, N bands needed there
+    from pwsolid.crystal import diamond
+    from pwsolid.scf import prepare
+    from pwsolid.settings import GroundStateSettings
+
+    setup = prepare(diamond(10.26, "Si"), GroundStateSettings(
+        cutoff=4.0, kpoint_mesh=(1, 1, 1), kpoint_shift=(0, 0, 0), spin_polarized=True,
+        fixed_moment=-8.0))
+    assert setup.n_bands >= 8
+
+
+def test_check_input_prints_the_memory_and_time_estimate(tmp_path, capsys):
+    from pwsolid.cli import main
+
+    path = tmp_path / "coating-trial.toml"
+    path.write_text(CRYSTAL)
+    assert main(["check-input", str(path)]) == 0
+    out = capsys.readouterr().out
+    assert "estimated memory" in out and "plane waves" in out and "FFT grid" in out
+
+
+def test_the_plane_wave_estimate_matches_the_basis():
+    # The count of G inside the cutoff sphere approaches Omega k_c^3 / (6 pi^2), the
+    # sphere's volume over the reciprocal cell's (common practice); at 15 Ha silicon has
+    # about 700 plane waves, where the surface of the sphere makes a few per cent.
+    from pwsolid.crystal import diamond
+    from pwsolid.scf import prepare
+    from pwsolid.settings import GroundStateSettings
+
+    setup = prepare(diamond(10.26, "Si"), GroundStateSettings(cutoff=15.0, kpoint_mesh=(2, 2, 2)))
+    from pwsolid.preflight import estimate_resources
+
+    estimate = estimate_resources(setup.crystal, setup.settings, len(setup.bases),
+                                  setup.n_bands, setup.grid_shape)
+    mean = sum(b.size for b in setup.bases) / len(setup.bases)
+    assert abs(estimate.plane_waves - mean) < 0.05 * mean
+
+
+def test_bundled_examples_write_to_the_working_directory(tmp_path, monkeypatch):
+    # issue 15: running the repository's examples must not leave files among them
+    from pwsolid.resources import inputs_dir
+
+    monkeypatch.chdir(tmp_path)
+    run = load_input(inputs_dir() / "silicon-substrate.toml")
+    for path in (run.result_file, run.density_file, run.checkpoint_file):
+        assert path.parent == tmp_path
+
+
+# -- command-line options named in their messages (issue 15) -------------------------------
+@pytest.mark.parametrize("argv, option, fragment", [
+    (["xc-testbench", "--compare", "foo"], "--compare", "unknown exchange-correlation"),
+    (["density-response", "--rs", "0"], "--rs", "positive number in bohr"),
+    (["jellium", "--rs", "-2"], "--rs", "positive number in bohr"),
+    (["empirical-bands", "Si", "--path", ""], "--path", "is empty"),
+    (["empirical-bands", "Si", "--path", "  "], "--path", "is empty"),
+])
+def test_options_are_named_in_their_messages(tmp_path, monkeypatch, capsys, argv, option,
+                                             fragment):
+    from pwsolid.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    assert main(argv) == 3
+    err = capsys.readouterr().err
+    assert f"'{option}'" in err and fragment in err and "exchange_correlation" not in err
+    assert "singular" not in err and err.count("\n") == 1
+
+
+def test_band_structure_refuses_an_empty_path_before_any_work(tmp_path, capsys):
+    from pwsolid.cli import main
+
+    path = tmp_path / "coating-trial.toml"
+    path.write_text(CRYSTAL)
+    assert main(["band-structure", str(path), "--path", "", "--output-dir", str(tmp_path)]) == 3
+    assert "'--path'" in capsys.readouterr().err
+    assert not (tmp_path / "coating-trial.density.npz").exists()
+
+
+def test_interrupted_scan_says_how_to_resume(tmp_path, monkeypatch, capsys):
+    import importlib
+
+    from pwsolid.cli import main
+
+    def interrupted(*args, **kwargs):
+        raise KeyboardInterrupt
+
+    monkeypatch.setattr(importlib.import_module("pwsolid.workflows.equation_of_state"),
+                        "scan_volumes", interrupted)
+    path = tmp_path / "coating-trial.toml"
+    path.write_text(CRYSTAL + '[basis]\ncutoff = "4 Ha"\n[brillouin_zone]\nmesh = [1, 1, 1]\n')
+    assert main(["equation-of-state", str(path), "--quiet", "--output-dir",
+                 str(tmp_path)]) == 130
+    err = capsys.readouterr().err
+    assert "coating-trial.eos-points.json" in err and "run the same command again" in err
+
+
+def test_help_and_pseudopotential_list_read_right(capsys):
+    from pwsolid.cli import build_parser, main
+
+    assert "LDA and GGA" in build_parser().description
+    assert main(["list-pseudopotentials"]) == 0
+    lines = [line for line in capsys.readouterr().out.splitlines() if line.strip()]
+    starts = {line.index("valence") for line in lines}
+    assert len(starts) == 1, "the valence column is not aligned"
+    assert not any(" 1 atoms" in line for line in lines)
