@@ -21,6 +21,7 @@ from .kpoints import KPointSet, irreducible_kpoints, monkhorst_pack
 from .pseudo import Pseudopotential, load_pseudopotential
 from .results import ground_state_document, load_density, save_density, write_json
 from .scf import GroundState, WavefunctionStart, ground_state, prepare
+from .forces import AtomicForces, atomic_forces
 from .settings import GroundStateSettings
 from .symmetry import SymmetryOperations, find_symmetry
 from .units import BOHR_ANGSTROM, HARTREE_EV, parse_quantity
@@ -57,4 +58,5 @@ __all__ = [
     "StructureComparison", "band_structure", "empirical_band_structure", "BandStructure",
     "density_of_states", "DOSResult", "testbench_report", "uniform_gas_table", "UniformGasReport",
     "load_user_functional", "check_exact_conditions", "WavefunctionStart",
+    "AtomicForces", "atomic_forces",
 ]
