@@ -42,6 +42,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .electrostatics import ewald_stress, hartree_stress
+from .energies import local_energy
 from .hamiltonian import core_density, local_potential
 from .pseudo.separable import nonlocal_operator, projector_gradients
 from .units import HA_PER_BOHR3_GPA
@@ -256,9 +257,8 @@ def stress_tensor(gs, *, symmetrize: bool = True, pulay: bool = False) -> Stress
 
     Notes
     -----
-    An ``external_potential`` given to :func:`pwsolid.scf.prepare` is treated as part
-    of the local ionic potential only through its energy; its strain dependence is not
-    defined and it is left out.
+    An ``external_potential`` given to :func:`pwsolid.scf.prepare` has no defined
+    strain dependence: it is left out (the local part uses the ionic potential only).
 
     References
     ----------
@@ -275,10 +275,12 @@ def stress_tensor(gs, *, symmetrize: bool = True, pulay: bool = False) -> Stress
     parts = dict.fromkeys(PART_NAMES)
     parts["kinetic"], parts["nonlocal"] = _band_parts(gs)
     parts["hartree"] = hartree_stress(n_g, g, volume)
+    ionic = local_potential(lattice, frac, crystal.species,
+                            {s: pp.local for s, pp in pps.items()}, setup.grid_shape)
+    e_local = local_energy(ionic, n_g, volume)[0]      # without any external potential
     slope = local_potential(lattice, frac, crystal.species,
                             {s: _Slope(pp.local) for s, pp in pps.items()}, setup.grid_shape)
-    parts["local"] = (-gs.energy.local_pseudopotential / volume * unit
-                      + radial_form_stress(n_g, slope, g))
+    parts["local"] = -e_local / volume * unit + radial_form_stress(n_g, slope, g)
     parts["g0"] = -gs.energy.pseudopotential_g0 / volume * unit
     parts["exchange_correlation"], parts["partial_core"] = _xc_parts(gs)
     parts["ewald"] = (ewald_stress(lattice, crystal.cartesian_positions,
