@@ -151,7 +151,8 @@ def kinetic_stress(coefficients: np.ndarray, kpg: np.ndarray, occupations: np.nd
 
 
 def nonlocal_stress(coefficients: np.ndarray, kpg: np.ndarray, atoms: list,
-                    occupations: np.ndarray, weight: float, volume: float) -> np.ndarray:
+                    occupations: np.ndarray, weight: float, volume: float,
+                    operator: tuple | None = None) -> np.ndarray:
     """Separable-projector stress of one channel (3, 3), Ha/bohr^3.
 
     Parameters
@@ -162,31 +163,35 @@ def nonlocal_stress(coefficients: np.ndarray, kpg: np.ndarray, atoms: list,
         Every atom carrying projectors (as :func:`pwsolid.pseudo.nonlocal_operator`).
     occupations : (n_bands,) float
     weight, volume : float
+    operator : (P, D), optional
+        ``nonlocal_operator(kpg, atoms, volume)`` if already at hand (the SCF keeps it).
 
     Notes
     -----
     P_aG = F(k+G) e^{-i(k+G).tau}/sqrt(Omega) with F = p_i^l Y_lm; under strain
     dP/d eps_ab = -(k+G)_a dF/dq_b (...) - delta_ab P/2, so with B = C P^dagger,
     sigma_ab = -E_nl delta_ab/Omega
-               - (2 w/Omega) sum_n f_n Re[B_n^* D (C (k+G)_a dP_b^dagger)_n]
-    (Nielsen and Martin, Phys. Rev. B 32, 3780 (1985)). Atoms are taken one at a
-    time (D is block-diagonal over atoms), so memory stays at one atom's gradients.
+               - (2 w/Omega) sum_G (k+G)_a Re sum_p Z_pG dP*_b,pG,
+    Z = (f B^* D)^T C, one product for all atoms (Nielsen and Martin, Phys. Rev. B 32,
+    3780 (1985)). The gradients dP_b are made one atom at a time, so memory stays at
+    one atom's.
     """
+    proj, coupling = operator if operator is not None else nonlocal_operator(kpg, atoms, volume)
+    if proj is None or not len(proj):
+        return np.zeros((3, 3))
     f = np.asarray(occupations, float)
-    along = np.zeros((3, len(kpg)))                  # Re sum_p Z_pG dP*_bpG, per b
-    energy = 0.0
+    b = coefficients @ proj.conj().T                                    # (nb, n_p)
+    bd = (b.conj() @ coupling) * f[:, None]                             # f_n B_n^* D
+    energy = float(np.sum(bd * b).real)
+    z = bd.T @ coefficients                                             # (n_p, n_pw)
+    along = np.zeros((3, len(kpg)))                  # Re sum_p Z_pG dP*_b,pG, per b
+    start = 0
     for tau, part in atoms:
-        proj, coupling = nonlocal_operator(kpg, [(tau, part)], volume)
-        if not len(proj):
-            continue
-        b = coefficients @ proj.conj().T                                # (nb, n_p)
-        bd = (b.conj() @ coupling) * f[:, None]                         # f_n B_n^* D
-        energy += float(np.sum(bd * b).real)
-        # sum_n bd_np (C q_a dP_b^dagger)_np = sum_G q_Ga sum_p Z_pG dP*_bpG, Z = bd^T C:
-        # one product per atom instead of nine
-        z = bd.T @ coefficients                                         # (n_p, n_pw)
         grads = projector_gradients(kpg, tau, part, volume)            # (3, n_p, n_pw)
-        along += np.einsum("pg,bpg->bg", z, grads.conj()).real
+        rows = z[start:start + grads.shape[1]]
+        start += grads.shape[1]
+        along += np.einsum("pg,bpg->bg", rows.real, grads.real)
+        along += np.einsum("pg,bpg->bg", rows.imag, grads.imag)
     return weight / volume * (-2.0 * kpg.T @ along.T - energy * np.eye(3))
 
 
@@ -312,7 +317,8 @@ def _band_parts(gs) -> tuple[np.ndarray, np.ndarray]:
         f = gs.occupations[j][:c.shape[0]]
         both[0] += kinetic_stress(c, kpg, f, weights[j], setup.volume)
         if atoms:
-            both[1] += nonlocal_stress(c, kpg, atoms, f, weights[j], setup.volume)
+            both[1] += nonlocal_stress(c, kpg, atoms, f, weights[j], setup.volume,
+                                       setup.nonlocal_ops[ik])
     both = setup.comm.allreduce_sum(both)
     ops = setup.kpoints.operations
     if ops is not None and ops.n_ops > 1:
