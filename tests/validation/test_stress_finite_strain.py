@@ -85,9 +85,12 @@ def _case(name):
     raise KeyError(name)
 
 
-CASES = ["silicon-separable", "aluminium-smearing-empty-core", "silicon-pbe",
-         "hydrogen-spin-polarised-pbe", "sodium-partial-core-pbe",
-         "gallium-arsenide-d-projectors", "silicon-appelbaum-hamann"]
+# the metals (smearing, 3x3x3 meshes) and GaAs with d projectors take 8-12 s each
+CASES = ["silicon-separable", "silicon-pbe", "hydrogen-spin-polarised-pbe",
+         "silicon-appelbaum-hamann",
+         pytest.param("aluminium-smearing-empty-core", marks=pytest.mark.slow),
+         pytest.param("sodium-partial-core-pbe", marks=pytest.mark.slow),
+         pytest.param("gallium-arsenide-d-projectors", marks=pytest.mark.slow)]
 
 
 def _strained(crystal, strain):
