@@ -15,17 +15,17 @@ coefficients, where under strain
 
 The parts (each (3, 3), Ha/bohr^3; they add up to the tensor):
 
-=====================  ==================================================================
-``kinetic``            -(1/Omega) sum_nk w f sum_G |c|^2 (k+G)_a (k+G)_b
-``hartree``            -E_H delta/Omega + sum_G 4 pi |n(G)|^2 G_a G_b / G^4
-``local``              -E_loc delta/Omega - sum_G Re[n(G) dV*(G)] G_a G_b / |G|, dV the
-                       structure-factor sum of dv/dq of every local form
-``g0``                 -E_G0 delta/Omega (E_G0 = N_el/Omega sum_atoms w(0))
-``nonlocal``           -E_nl delta/Omega - (2/Omega) sum w f Re <psi|p> h <(k+G)_a d_b p|psi>
-``exchange_correlation``  (E_xc - int v_xc (n + n_c)) delta/Omega + the gradient term
-``partial_core``       -sum_G Re[v_xc*(G) dn_c(G)] G_a G_b / |G| (the core moves with the atoms)
-``ewald``              :func:`pwsolid.electrostatics.ewald_stress`
-=====================  ==================================================================
+* ``kinetic``: -(1/Omega) sum_nk w f sum_G |c|^2 (k+G)_a (k+G)_b;
+* ``hartree``: -E_H delta/Omega + sum_G 4 pi |n(G)|^2 G_a G_b / G^4;
+* ``local``: -E_loc delta/Omega - sum_G Re[n(G) dV*(G)] G_a G_b / |G|, dV the
+  structure-factor sum of dv/dq of every local form;
+* ``g0``: -E_G0 delta/Omega (E_G0 = N_el/Omega sum_atoms w(0));
+* ``nonlocal``: -E_nl delta/Omega - (2/Omega) sum w f Re <psi|p> h <(k+G)_a d_b p|psi>;
+* ``exchange_correlation``: (E_xc - int v_xc (n + n_c)) delta/Omega + the gradient term
+  of :func:`pwsolid.xc_grid.gradient_stress`;
+* ``partial_core``: -sum_G Re[v_xc*(G) dn_c(G)] G_a G_b / |G| (the core moves with the
+  atoms);
+* ``ewald``: :func:`pwsolid.electrostatics.ewald_stress`.
 
 References
 ----------
