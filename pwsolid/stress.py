@@ -44,6 +44,7 @@ import numpy as np
 from .electrostatics import ewald_stress, hartree_stress
 from .energies import local_energy
 from .hamiltonian import core_density, local_potential
+from .parallel import single_threaded_blas
 from .pseudo.separable import nonlocal_operator, projector_gradients
 from .units import HA_PER_BOHR3_GPA
 from .xc_grid import exchange_correlation_on_grid, gradient_stress
@@ -269,6 +270,20 @@ def stress_tensor(gs, *, symmetrize: bool = True, pulay: bool = False) -> Stress
     ----------
     O. H. Nielsen and R. M. Martin, Phys. Rev. B 32, 3780 (1985).
     """
+    with single_threaded_blas():     # as in the SCF: BLAS threads fight FFTW's and others'
+        parts = _parts(gs)
+    setup = gs.setup
+    ops = setup.kpoints.operations if setup.kpoints.operations is not None else setup.symmetry
+    if symmetrize and ops.n_ops > 1:
+        rot = cartesian_rotations(setup.crystal.lattice, ops.rotations)
+        parts = {k: symmetrize_tensor(v, rot) for k, v in parts.items()}
+    tensor = sum(parts.values())
+    estimate = pulay_stress_estimate(gs) if pulay else None
+    return StressTensor(tensor, parts, estimate)
+
+
+def _parts(gs) -> dict:
+    """Every part of :data:`PART_NAMES`, unsymmetrised (band parts k-symmetrised)."""
     setup = gs.setup
     crystal = setup.crystal
     volume = setup.volume
@@ -291,13 +306,7 @@ def stress_tensor(gs, *, symmetrize: bool = True, pulay: bool = False) -> Stress
     parts["ewald"] = (ewald_stress(lattice, crystal.cartesian_positions,
                                    [pps[s].valence for s in crystal.species])
                       if crystal.n_atoms else np.zeros((3, 3)))
-    ops = setup.kpoints.operations if setup.kpoints.operations is not None else setup.symmetry
-    if symmetrize and ops.n_ops > 1:
-        rot = cartesian_rotations(lattice, ops.rotations)
-        parts = {k: symmetrize_tensor(v, rot) for k, v in parts.items()}
-    tensor = sum(parts.values())
-    estimate = pulay_stress_estimate(gs) if pulay else None
-    return StressTensor(tensor, parts, estimate)
+    return parts
 
 
 def _band_parts(gs) -> tuple[np.ndarray, np.ndarray]:
