@@ -18,7 +18,7 @@ from pwsolid.pseudo.local import (LOCAL_FORMS, AppelbaumHamann, EmptyCore, Evane
                                   GaussianLocal, LocalForm)
 from pwsolid.pseudo.separable import (ProjectorChannel, SeparablePart, nonlocal_operator,
                                       projector_gradients)
-from pwsolid.stress import (StressTensor, cartesian_rotations, kinetic_stress,
+from pwsolid.stress import (StressTensor, cartesian_rotations, cutoff_slope, kinetic_stress,
                             nonlocal_stress, symmetrize_tensor)
 from pwsolid.symmetry import find_symmetry
 from pwsolid.crystal import diamond
@@ -226,3 +226,18 @@ def test_document_units_and_sign():
     lines = st.summary_lines()
     assert any("pressure" in line and "GPa" in line for line in lines)
     assert StressTensor(tensor, {}).as_document()["pulay_estimate_GPa"] is None
+
+
+@pytest.mark.parametrize("tau", [3.0, 0.7])
+def test_cutoff_slope_is_exact_for_an_exponential_decay(tau):
+    # F = F_inf + A exp(-E/tau): the model the Pulay estimate fits (common practice for
+    # the cutoff convergence of plane-wave energies, from memory); exact by construction
+    def f(e):
+        return -7.9 + 0.4 * np.exp(-e / tau)
+
+    e_c, h = 16.0, 1.6
+    slope = cutoff_slope([f(e_c), f(e_c - h), f(e_c - 2 * h)], h)
+    assert slope == pytest.approx(-0.4 / tau * np.exp(-e_c / tau), rel=1e-8)
+    # linear convergence: the plain difference; no decay: zero
+    assert cutoff_slope([0.0, 0.1, 0.2], 0.5) == pytest.approx(-0.2)
+    assert cutoff_slope([1.0, 1.0, 1.3], 0.5) == 0.0
