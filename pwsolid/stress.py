@@ -118,8 +118,9 @@ class StressTensor:
         lines.append(f"pressure: {self.pressure * HA_PER_BOHR3_GPA:.4f} GPa")
         if self.pulay_estimate is not None:
             p = -float(np.trace(self.pulay_estimate)) / 3 * HA_PER_BOHR3_GPA
+            fixed = self.pressure * HA_PER_BOHR3_GPA + p
             lines.append(f"Pulay (finite basis) pressure estimate: {p:+.4f} GPa "
-                         f"(pressure at fixed cutoff: {self.pressure * HA_PER_BOHR3_GPA + p:.4f} GPa)")
+                         f"(pressure at fixed cutoff: {fixed:.4f} GPa)")
         return lines
 
 

@@ -115,7 +115,7 @@ def gradient_stress(xc: GridExchangeCorrelation) -> np.ndarray:
     Notes
     -----
     A strain eps changes the gradient invariants beyond their scaling with the
-    density: d sigma / d eps_ab = -2 sigma delta_ab - 2 d_a n d_b n. The uniform part
+    density: d|grad n|^2 / d eps_ab = -2 |grad n|^2 delta_ab - 2 d_a n d_b n. The uniform part
     belongs to the diagonal term (E_xc - int v_xc n) delta_ab / Omega; what is left is
 
         sigma_ab = -(1/Omega) int [2 e_uu d_a n_up d_b n_up
