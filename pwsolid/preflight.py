@@ -18,7 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import xc as _xc
-from .basis import PlaneWaveSet, fft_grid_for_cutoff, make_basis
+from .basis import PlaneWaveSet, basis_from_miller, fft_grid_for_cutoff, make_basis
 from .crystal import Crystal
 from .errors import InputError
 from .kpoints import KPointSet, irreducible_kpoints, join_by_full_symmetry
@@ -234,7 +234,8 @@ class GroundStatePlan:
 
 
 def plan_ground_state(crystal: Crystal, settings: GroundStateSettings, *,
-                      join_kpoints=join_by_full_symmetry) -> GroundStatePlan:
+                      join_kpoints=join_by_full_symmetry,
+                      plane_waves=None) -> GroundStatePlan:
     """Run every check of a ground state that comes before its first iteration.
 
     Loads the pseudopotentials and the functional, counts the electrons and checks the
@@ -243,6 +244,8 @@ def plan_ground_state(crystal: Crystal, settings: GroundStateSettings, *,
     (checking a forced FFT grid and the number of plane waves against the bands).
     ``join_kpoints(kpoints, symmetry)`` completes a mesh that the full group does not
     keep (the driver passes its own, so that a test can switch it off).
+    ``plane_waves`` (one Miller-index array per irreducible k-point) fixes the basis
+    instead of the cutoff sphere (see :func:`pwsolid.scf.prepare`).
 
     Raises
     ------
@@ -264,8 +267,16 @@ def plan_ground_state(crystal: Crystal, settings: GroundStateSettings, *,
     n_bands = band_count(settings, n_el)
     estimate = estimate_resources(crystal, settings, len(k_list.fractional), n_bands, grid)
     _check_fits(estimate, settings)
+    if plane_waves is not None and len(plane_waves) != len(k_list.fractional):
+        raise ValueError(f"{len(plane_waves)} plane-wave sets for {len(k_list.fractional)} "
+                         "k-points")
     try:
-        bases = [make_basis(crystal.lattice, k, settings.cutoff, grid) for k in k_list.fractional]
+        if plane_waves is None:
+            bases = [make_basis(crystal.lattice, k, settings.cutoff, grid)
+                     for k in k_list.fractional]
+        else:
+            bases = [basis_from_miller(crystal.lattice, k, m, grid)
+                     for k, m in zip(k_list.fractional, plane_waves)]
     except ValueError as exc:
         raise InputError(f"{exc}; use a larger grid or remove the setting",
                          key="basis.fft_grid", value=list(grid)) from None

@@ -107,11 +107,16 @@ class SystemSetup:
 
 
 def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
-            comm=None, external_potential=None) -> SystemSetup:
+            comm=None, external_potential=None, plane_waves=None) -> SystemSetup:
     """Build the fixed set-up of a ground-state calculation.
 
     ``comm`` (default: :func:`pwsolid.parallel.world`) spreads the k-points over MPI
     processes; every process holds the whole density and all eigenvalues.
+
+    ``plane_waves`` (one Miller-index array per irreducible k-point, e.g.
+    ``[b.miller for b in reference.bases]``) fixes the basis instead of the cutoff
+    sphere: a strained copy of a cell then keeps its plane waves (see
+    :func:`pwsolid.basis.basis_from_miller`); set ``basis.fft_grid`` alike.
 
     ``external_potential`` (Ha, on the FFT grid the settings give, or a callable of
     the grid shape returning it) is added to the ionic local potential, e.g. a weak
@@ -122,7 +127,8 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
     settings = settings or GroundStateSettings()
     n_spin = 2 if settings.spin_polarized else 1
     # every check before the first iteration lives in the plan (check-input runs it too)
-    plan = plan_ground_state(crystal, settings, join_kpoints=join_by_full_symmetry)
+    plan = plan_ground_state(crystal, settings, join_kpoints=join_by_full_symmetry,
+                             plane_waves=plane_waves)
     pps, functional, n_el = plan.pseudopotentials, plan.functional, plan.n_electrons
     symmetry, k_list, grid, bases, n_bands = (plan.symmetry, plan.kpoints, plan.grid,
                                               plan.bases, plan.n_bands)

@@ -11,7 +11,7 @@ LAYERS = {
     1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos"},
     2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath"},
     3: {"pseudo", "electrostatics", "hamiltonian", "energies", "xc_grid"},  # pseudo/atom.py too
-    4: {"scf", "parallel", "settings", "store", "warm_start", "preflight", "forces"},
+    4: {"scf", "parallel", "settings", "store", "warm_start", "preflight", "forces", "stress"},
     5: {"workflows"},
     6: {"config", "results", "plots", "cli", "commands"},
 }
