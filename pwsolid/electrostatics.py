@@ -17,7 +17,7 @@ import numpy as np
 from scipy.special import erfc
 
 __all__ = ["hartree_potential", "hartree_energy", "ewald_energy", "ewald_forces",
-           "coulomb_kernel"]
+           "coulomb_kernel", "hartree_stress", "ewald_stress"]
 
 
 def coulomb_kernel(g2: np.ndarray) -> np.ndarray:
@@ -188,3 +188,96 @@ def _lattice_range(vectors: np.ndarray, radius: float) -> list[int]:
     inv = np.linalg.inv(vectors).T
     plane_spacing = 1.0 / np.linalg.norm(inv, axis=1)
     return [int(math.ceil(radius / s)) for s in plane_spacing]
+
+
+def hartree_stress(density_g: np.ndarray, g_vectors: np.ndarray, volume: float) -> np.ndarray:
+    """Strain derivative of E_H divided by the volume (3, 3), Ha/bohr^3.
+
+    Parameters
+    ----------
+    density_g : (*grid) complex
+        n(G), bohr^-3 (FFT normalisation: to_reciprocal).
+    g_vectors : (*grid, 3) float
+        Cartesian G, bohr^-1.
+    volume : float
+        Cell volume, bohr^3.
+
+    Notes
+    -----
+    Omega n(G) is fixed under strain while G_a -> G_a - eps_ba G_b, so
+    sigma_ab = -E_H delta_ab / Omega + sum_{G != 0} 4 pi |n(G)|^2 G_a G_b / G^4
+    (O. H. Nielsen and R. M. Martin, Phys. Rev. B 32, 3780 (1985)).
+    """
+    g = np.asarray(g_vectors, float).reshape(-1, 3)
+    g2 = np.einsum("ij,ij->i", g, g)
+    kernel = coulomb_kernel(g2)
+    n2 = np.abs(np.asarray(density_g).reshape(-1)) ** 2
+    energy = 0.5 * volume * float(np.sum(kernel * n2))
+    weight = np.divide(kernel * n2, g2, out=np.zeros_like(g2), where=g2 > 1e-12)
+    return -energy / volume * np.eye(3) + np.einsum("g,ga,gb->ab", weight, g, g)
+
+
+def ewald_stress(lattice: np.ndarray, positions: np.ndarray, charges: np.ndarray,
+                 tolerance: float = 1e-12, splitting: float | None = None) -> np.ndarray:
+    """Strain derivative of :func:`ewald_energy` divided by the volume (3, 3), Ha/bohr^3.
+
+    Parameters are those of :func:`ewald_energy`.
+
+    Notes
+    -----
+    With x = r_ij + L and f(d) = erfc(eta d)/d, a strain x -> (1 + eps) x and
+    G -> (1 + eps)^-T G gives
+
+        Omega sigma_ab = 1/2 sum_ij sum_L' q_i q_j f'(|x|) x_a x_b / |x|
+            + (2 pi / Omega) sum_{G != 0} |S(G)|^2 exp(-G^2/4eta^2)/G^2
+              [2 (1/(4 eta^2) + 1/G^2) G_a G_b - delta_ab]
+            + pi (sum q)^2 / (2 Omega eta^2) delta_ab,
+
+    f'(d) = -erfc(eta d)/d^2 - 2 eta exp(-eta^2 d^2)/(sqrt(pi) d); the self term
+    does not depend on the cell.
+
+    References
+    ----------
+    O. H. Nielsen and R. M. Martin, Phys. Rev. B 32, 3780 (1985), Appendix (Ewald
+    stress); P. P. Ewald, Ann. Phys. 369, 253 (1921).
+    """
+    lattice = np.asarray(lattice, float)
+    pos = np.asarray(positions, float).reshape(-1, 3)
+    q = np.asarray(charges, float).reshape(-1)
+    volume = abs(np.linalg.det(lattice))
+    eta = splitting if splitting is not None else math.sqrt(math.pi) / volume ** (1 / 3)
+    log_tol = -math.log(tolerance)
+    out = np.zeros((3, 3))
+
+    r_max = math.sqrt(log_tol) / eta
+    while erfc(eta * r_max) / r_max > tolerance:
+        r_max *= 1.1
+    diffs = pos[:, None, :] - pos[None, :, :]
+    span = np.max(np.linalg.norm(diffs, axis=-1)) if len(pos) > 1 else 0.0
+    n_l = _lattice_range(lattice, r_max + span)
+    cells = np.array(list(itertools.product(*(range(-n, n + 1) for n in n_l))), float) @ lattice
+    qq = q[:, None] * q[None, :]
+    for chunk in np.array_split(cells, max(1, len(cells) // 2000 + 1)):
+        x = diffs[:, :, None, :] + chunk[None, None, :, :]
+        d = np.linalg.norm(x, axis=-1)
+        mask = d > 1e-10
+        ds = np.where(mask, d, 1.0)
+        slope = (-erfc(eta * ds) / ds ** 2
+                 - 2 * eta / math.sqrt(math.pi) * np.exp(-(eta * ds) ** 2) / ds)
+        weight = np.where(mask, 0.5 * qq[:, :, None] * slope / ds, 0.0)
+        out += np.einsum("ijl,ijla,ijlb->ab", weight, x, x)
+
+    recip = 2 * np.pi * np.linalg.inv(lattice).T
+    g_max = 2 * eta * math.sqrt(log_tol)
+    n_g = _lattice_range(recip, g_max)
+    m = np.array(list(itertools.product(*(range(-n, n + 1) for n in n_g))), float)
+    g = m @ recip
+    g2 = np.einsum("ij,ij->i", g, g)
+    keep = (g2 > 1e-12) & (g2 <= g_max * g_max)
+    g, g2 = g[keep], g2[keep]
+    term = (2 * np.pi / volume * np.exp(-g2 / (4 * eta * eta)) / g2
+            * np.abs(np.exp(1j * g @ pos.T) @ q) ** 2)
+    out += np.einsum("g,ga,gb->ab", term * 2 * (1 / (4 * eta * eta) + 1 / g2), g, g)
+    out -= float(np.sum(term)) * np.eye(3)
+    out += math.pi * float(np.sum(q)) ** 2 / (2 * volume * eta * eta) * np.eye(3)
+    return out / volume

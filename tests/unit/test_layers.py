@@ -11,7 +11,7 @@ LAYERS = {
     1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos", "optimize"},
     2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath"},
     3: {"pseudo", "electrostatics", "hamiltonian", "energies", "xc_grid"},  # pseudo/atom.py too
-    4: {"scf", "parallel", "settings", "checkpoint", "forces"},
+    4: {"scf", "parallel", "settings", "checkpoint", "forces", "stress"},
     5: {"workflows"},
     6: {"config", "results", "plots", "cli", "commands"},
 }
