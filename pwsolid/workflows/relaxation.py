@@ -647,18 +647,17 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
         if converged:
             best = (k, cell, ev)
             break
-        if k >= relax.max_steps:
-            messages.append(f"the thresholds were not reached in {relax.max_steps} moves; "
-                            "raise relaxation.max_steps (the run continues from its checkpoint)")
-            break
         problem = _volume_problem(coords, state.x, state.proposal, relax)
         if problem:
             messages.append(problem)
             break
-        z = state.proposal
         if checkpoint is not None:
-            _save_step(checkpoint, fp, history, state, _density_of(previous),
-                       best[1].volume)
+            _save_step(checkpoint, fp, history, state, _density_of(previous), best[1].volume)
+        if k >= relax.max_steps:
+            messages.append(f"the thresholds were not reached in {relax.max_steps} moves; "
+                            "raise relaxation.max_steps (the run continues from its checkpoint)")
+            break
+        z = state.proposal
     if converged and checkpoint is not None and Path(checkpoint).exists():
         Path(checkpoint).unlink()
     for m in messages:
