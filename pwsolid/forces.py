@@ -53,10 +53,13 @@ class AtomicForces:
         The total force, symmetrised with the crystal's operations when asked.
     parts : dict of str -> ndarray (n_atoms, 3), Ha/bohr
         ``"local"``, ``"nonlocal"``, ``"ewald"``, ``"partial_core"`` (unsymmetrised;
-        a part the crystal lacks is zero).
+        a part the crystal lacks is zero). When symmetry reduced the k-mesh, the
+        separable part is a sum over the irreducible k-points only, which only the
+        group average turns into the full-mesh force.
     net : ndarray (3,) float, Ha/bohr
-        Sum over the atoms of the unsymmetrised total: zero in exact arithmetic
-        (translation invariance), so its size is a health check of the calculation.
+        Sum over the atoms of the unsymmetrised total: zero but for the "egg-box"
+        error of exchange-correlation on the grid (translation invariance), which
+        falls with the cutoff, so its size is a health check of the calculation.
     species : tuple of str
         Element of each atom.
     symmetrized : bool

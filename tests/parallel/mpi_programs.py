@@ -38,6 +38,22 @@ def ground_state(pseudopotential: str) -> dict:
             "energies_on_every_process": energies}
 
 
+def forces() -> dict:
+    """Forces on displaced silicon, spin-polarised without symmetry: 16 channels to share."""
+    from pwsolid.forces import atomic_forces
+
+    comm = world()
+    si = pwsolid.diamond(pwsolid.angstrom(5.431), "Si")
+    moved = pwsolid.Crystal(si.lattice, si.species, si.positions + [[0.01, -0.02, 0.015], [0, 0, 0]])
+    settings = pwsolid.GroundStateSettings(
+        pseudopotentials={"Si": "Si-goedecker-teter-hutter.toml"}, use_symmetry=False,
+        spin_polarized=True, **SILICON)
+    result = atomic_forces(pwsolid.ground_state(moved, settings))
+    return {"processes": comm.size, "forces_Ha_per_bohr": result.cartesian.tolist(),
+            "nonlocal_Ha_per_bohr": result.parts["nonlocal"].tolist(),
+            "forces_on_every_process": comm.allgather(result.cartesian.tolist())}
+
+
 def gamma_supercell() -> dict:
     """The cubic 8-atom silicon cell at Gamma: one k-point, so a second process
     shares the bands of the first (pwsolid.parallel.band_group)."""
@@ -98,7 +114,7 @@ def volume_scan() -> dict:
 if __name__ == "__main__":
     what, out = sys.argv[1], sys.argv[2]
     programs = {"volume-scan": volume_scan, "gamma-supercell": gamma_supercell,
-                "band-path": band_path}
+                "band-path": band_path, "forces": forces}
     result = programs[what]() if what in programs else ground_state(what)
     if world().rank == 0:
         with open(out, "w") as fh:
