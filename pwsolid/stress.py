@@ -42,6 +42,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .electrostatics import ewald_stress, hartree_stress
+from .energies import local_energy
 from .hamiltonian import core_density, local_potential
 from .pseudo.separable import nonlocal_operator, projector_gradients
 from .units import HA_PER_BOHR3_GPA
@@ -150,7 +151,8 @@ def kinetic_stress(coefficients: np.ndarray, kpg: np.ndarray, occupations: np.nd
 
 
 def nonlocal_stress(coefficients: np.ndarray, kpg: np.ndarray, atoms: list,
-                    occupations: np.ndarray, weight: float, volume: float) -> np.ndarray:
+                    occupations: np.ndarray, weight: float, volume: float,
+                    operator: tuple | None = None) -> np.ndarray:
     """Separable-projector stress of one channel (3, 3), Ha/bohr^3.
 
     Parameters
@@ -161,33 +163,36 @@ def nonlocal_stress(coefficients: np.ndarray, kpg: np.ndarray, atoms: list,
         Every atom carrying projectors (as :func:`pwsolid.pseudo.nonlocal_operator`).
     occupations : (n_bands,) float
     weight, volume : float
+    operator : (P, D), optional
+        ``nonlocal_operator(kpg, atoms, volume)`` if already at hand (the SCF keeps it).
 
     Notes
     -----
     P_aG = F(k+G) e^{-i(k+G).tau}/sqrt(Omega) with F = p_i^l Y_lm; under strain
     dP/d eps_ab = -(k+G)_a dF/dq_b (...) - delta_ab P/2, so with B = C P^dagger,
     sigma_ab = -E_nl delta_ab/Omega
-               - (2 w/Omega) sum_n f_n Re[B_n^* D (C (k+G)_a dP_b^dagger)_n]
-    (Nielsen and Martin, Phys. Rev. B 32, 3780 (1985)). Atoms are taken one at a
-    time (D is block-diagonal over atoms), so memory stays at one atom's gradients.
+               - (2 w/Omega) sum_G (k+G)_a Re sum_p Z_pG dP*_b,pG,
+    Z = (f B^* D)^T C, one product for all atoms (Nielsen and Martin, Phys. Rev. B 32,
+    3780 (1985)). The gradients dP_b are made one atom at a time, so memory stays at
+    one atom's.
     """
+    proj, coupling = operator if operator is not None else nonlocal_operator(kpg, atoms, volume)
+    if proj is None or not len(proj):
+        return np.zeros((3, 3))
     f = np.asarray(occupations, float)
-    out = np.zeros((3, 3))
-    energy = 0.0
-    scaled = [coefficients * kpg[:, a] for a in range(3)]
+    b = coefficients @ proj.conj().T                                    # (nb, n_p)
+    bd = (b.conj() @ coupling) * f[:, None]                             # f_n B_n^* D
+    energy = float(np.sum(bd * b).real)
+    z = bd.T @ coefficients                                             # (n_p, n_pw)
+    along = np.zeros((3, len(kpg)))                  # Re sum_p Z_pG dP*_b,pG, per b
+    start = 0
     for tau, part in atoms:
-        proj, coupling = nonlocal_operator(kpg, [(tau, part)], volume)
-        if not len(proj):
-            continue
         grads = projector_gradients(kpg, tau, part, volume)            # (3, n_p, n_pw)
-        b = coefficients @ proj.conj().T                                # (nb, n_p)
-        bd = (b.conj() @ coupling) * f[:, None]                         # f_n B_n^* D
-        energy += float(np.sum(bd * b).real)
-        for a in range(3):
-            for c in range(3):
-                db = scaled[a] @ grads[c].conj().T
-                out[a, c] -= 2.0 * float(np.sum(bd * db).real)
-    return weight / volume * (out - energy * np.eye(3))
+        rows = z[start:start + grads.shape[1]]
+        start += grads.shape[1]
+        along += np.einsum("pg,bpg->bg", rows.real, grads.real)
+        along += np.einsum("pg,bpg->bg", rows.imag, grads.imag)
+    return weight / volume * (-2.0 * kpg.T @ along.T - energy * np.eye(3))
 
 
 def radial_form_stress(field_g: np.ndarray, slope_g: np.ndarray,
@@ -248,8 +253,8 @@ def stress_tensor(gs, *, symmetrize: bool = True, pulay: bool = False) -> Stress
         ``gs.kpoints.operations``). The band parts are always averaged over the
         operations that reduced the k-mesh, since the irreducible sum needs them.
     pulay : bool
-        Also estimate the basis-set (Pulay) stress with one more SCF at a lower
-        cutoff (:func:`pulay_stress_estimate`).
+        Also estimate the basis-set (Pulay) stress with two more SCFs at lower
+        cutoffs (:func:`pulay_stress_estimate`).
 
     Returns
     -------
@@ -257,9 +262,8 @@ def stress_tensor(gs, *, symmetrize: bool = True, pulay: bool = False) -> Stress
 
     Notes
     -----
-    An ``external_potential`` given to :func:`pwsolid.scf.prepare` is treated as part
-    of the local ionic potential only through its energy; its strain dependence is not
-    defined and it is left out.
+    An ``external_potential`` given to :func:`pwsolid.scf.prepare` has no defined
+    strain dependence: it is left out (the local part uses the ionic potential only).
 
     References
     ----------
@@ -276,10 +280,12 @@ def stress_tensor(gs, *, symmetrize: bool = True, pulay: bool = False) -> Stress
     parts = dict.fromkeys(PART_NAMES)
     parts["kinetic"], parts["nonlocal"] = _band_parts(gs)
     parts["hartree"] = hartree_stress(n_g, g, volume)
+    ionic = local_potential(lattice, frac, crystal.species,
+                            {s: pp.local for s, pp in pps.items()}, setup.grid_shape)
+    e_local = local_energy(ionic, n_g, volume)[0]      # without any external potential
     slope = local_potential(lattice, frac, crystal.species,
                             {s: _Slope(pp.local) for s, pp in pps.items()}, setup.grid_shape)
-    parts["local"] = (-gs.energy.local_pseudopotential / volume * unit
-                      + radial_form_stress(n_g, slope, g))
+    parts["local"] = -e_local / volume * unit + radial_form_stress(n_g, slope, g)
     parts["g0"] = -gs.energy.pseudopotential_g0 / volume * unit
     parts["exchange_correlation"], parts["partial_core"] = _xc_parts(gs)
     parts["ewald"] = (ewald_stress(lattice, crystal.cartesian_positions,
@@ -311,7 +317,8 @@ def _band_parts(gs) -> tuple[np.ndarray, np.ndarray]:
         f = gs.occupations[j][:c.shape[0]]
         both[0] += kinetic_stress(c, kpg, f, weights[j], setup.volume)
         if atoms:
-            both[1] += nonlocal_stress(c, kpg, atoms, f, weights[j], setup.volume)
+            both[1] += nonlocal_stress(c, kpg, atoms, f, weights[j], setup.volume,
+                                       setup.nonlocal_ops[ik])
     both = setup.comm.allreduce_sum(both)
     ops = setup.kpoints.operations
     if ops is not None and ops.n_ops > 1:
@@ -347,42 +354,49 @@ def _xc_parts(gs) -> tuple[np.ndarray, np.ndarray]:
 
 
 def pulay_stress_estimate(gs, relative_step: float = 0.1) -> np.ndarray:
-    """Estimate of the basis-set (Pulay) stress (3, 3), Ha/bohr^3, from two energies.
+    """Estimate of the basis-set (Pulay) stress (3, 3), Ha/bohr^3, from three energies.
 
     Parameters
     ----------
     gs : pwsolid.scf.GroundState
     relative_step : float
-        The second SCF runs at cutoff E_c (1 - relative_step), on the same FFT grid,
-        started from ``gs``'s density and orbitals.
+        Two more SCFs run at cutoffs E_c (1 - x) and E_c (1 - 2x), x = relative_step,
+        on the same FFT grid, started from ``gs``'s density and orbitals.
 
     Returns
     -------
     ndarray (3, 3)
-        sigma_P = (2/3) (E_c / Omega) dF/dE_c delta_ab, with dF/dE_c the one-sided
-        difference [F(E_c) - F(E_c (1 - step))] / (step E_c). It is what a derivative
-        at a fixed cutoff adds to the fixed-plane-wave stress of :func:`stress_tensor`
-        (negative: it pulls the cell in, so the pressure at fixed cutoff is higher).
+        sigma_P = (2/3) (E_c / Omega) dF/dE_c delta_ab, with dF/dE_c from the
+        second-order one-sided difference [3 F(E_c) - 4 F(E_c(1-x)) + F(E_c(1-2x))]
+        / (2 x E_c). It is what a derivative at a fixed cutoff (the plane-wave set
+        following the strain) adds to the fixed-plane-wave stress of
+        :func:`stress_tensor`; negative: it pulls the cell in, so the pressure at
+        fixed cutoff is higher than the analytic one.
 
     Notes
     -----
-    At fixed cutoff a uniform dilation eps adds plane waves like a cutoff raised by
-    2 eps E_c at fixed Miller set, so E_fixed cutoff - E_fixed set = 2 eps E_c dE/dE_c
-    and the extra stress is (2/3)(E_c/Omega) dE/dE_c per diagonal element: the
-    finite-basis correction of G. P. Francis and M. C. Payne, J. Phys.: Condens.
-    Matter 2, 4395 (1990) (from memory). The estimate is isotropic (a shear keeps
-    the volume and, to first order, the number of plane waves). The one-sided
-    difference overstates |dF/dE_c| somewhat, since the energy converges faster
-    than linearly: an upper bound on the size, as an estimate should be.
+    At fixed cutoff a uniform dilation eps adds plane waves as a cutoff raised by
+    2 eps E_c would at a fixed Miller set, so E_fixed cutoff - E_fixed set =
+    2 eps E_c dE/dE_c and the extra stress is (2/3)(E_c/Omega) dE/dE_c on the
+    diagonal: the finite-basis correction of G. P. Francis and M. C. Payne, J. Phys.:
+    Condens. Matter 2, 4395 (1990) (from memory). The estimate is isotropic (a shear
+    keeps the volume and, to first order, the number of plane waves). The
+    second-order difference matters: the energy converges faster than linearly in
+    the cutoff, and the plain difference of two energies overstated the estimate by
+    60 % for silicon at 16 Ha (tests/validation/pulay_stress_table.py --check compares
+    with finite volume differences at fixed cutoff).
     """
     from .scf import WavefunctionStart, ground_state
 
     setup = gs.setup
     cutoff = setup.settings.cutoff
-    low = dataclasses.replace(setup.settings, cutoff=cutoff * (1.0 - relative_step),
-                              fft_grid=setup.grid_shape)
     start = gs.density if gs.spin_densities is None else gs.spin_densities
-    other = ground_state(setup.crystal, low, initial_density=start,
-                         initial_wavefunctions=WavefunctionStart.of(gs))
-    slope = (gs.free_energy - other.free_energy) / (relative_step * cutoff)
+    warm = WavefunctionStart.of(gs)
+    energies = [gs.free_energy]
+    for n in (1, 2):
+        low = dataclasses.replace(setup.settings, cutoff=cutoff * (1.0 - n * relative_step),
+                                  fft_grid=setup.grid_shape)
+        energies.append(ground_state(setup.crystal, low, initial_density=start,
+                                     initial_wavefunctions=warm).free_energy)
+    slope = (3 * energies[0] - 4 * energies[1] + energies[2]) / (2 * relative_step * cutoff)
     return (2.0 / 3.0) * cutoff / setup.volume * slope * np.eye(3)

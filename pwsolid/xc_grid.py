@@ -135,7 +135,8 @@ def gradient_stress(xc: GridExchangeCorrelation) -> np.ndarray:
         return np.zeros((3, 3))
 
     def outer(a, b, weight):
-        return np.einsum("a...,b...,...->ab", a, b, weight) / weight.size
+        return np.einsum("ag,bg,g->ab", a.reshape(3, -1), b.reshape(3, -1),
+                         weight.reshape(-1)) / weight.size
 
     if len(xc.gradients) == 1:
         (grad,), (d,) = xc.gradients, xc.sigma_derivatives
