@@ -59,7 +59,9 @@ class QuasiNewtonState:
     max_radius : float
         Upper bound of the trust radius.
     noise : float
-        Rises of f up to this size are accepted (evaluation noise, e.g. of an SCF).
+        Rises of f up to this size are accepted (evaluation noise, e.g. of an SCF);
+        ``inf``: the values are not trusted at all, every step is accepted and the
+        radius follows the gradient alone (see :func:`_new_radius`).
     updates, rejected : int
         BFGS updates made and steps rejected so far.
     scaled : bool
@@ -141,7 +143,7 @@ def start_state(x0, value: float, gradient, *, radius: float = 0.2, max_radius: 
     g = np.array(gradient, float).ravel()
     if x0.shape != g.shape:
         raise ValueError(f"x has shape {x0.shape} but the gradient {g.shape}")
-    if not (radius > 0 and max_radius >= radius and curvature > 0 and noise >= 0):
+    if not (radius > 0 and max_radius >= radius and curvature > 0 and noise >= 0):  # inf allowed
         raise ValueError("need 0 < radius <= max_radius, curvature > 0 and noise >= 0")
     hessian = curvature * np.eye(len(x0))
     proposal, predicted = _propose(x0, g, hessian, radius)
@@ -165,6 +167,31 @@ def _bfgs_update(hessian, s, y, scaled: bool) -> tuple[np.ndarray, bool, bool]:
     bs = hessian @ s
     new = hessian - np.outer(bs, bs) / float(s @ bs) + np.outer(y, y) / ys
     return 0.5 * (new + new.T), True, True
+
+
+def _new_radius(state: QuasiNewtonState, s, g, actual: float, length: float) -> float:
+    """Trust radius after an accepted step (Nocedal & Wright 2006, Algorithm 4.1).
+
+    With trusted values the ratio rho = actual / predicted change decides. With
+    ``noise = inf`` (values not trusted, e.g. energies at a fixed cutoff whose
+    plane-wave count jumps as the cell moves) the slope along the step decides
+    instead: q = g_new.s / g_old.s is 0 at the minimum along the step, below -1
+    after an overshoot of more than twice the distance (shrink), above 1/2 when
+    the step stopped well short of it (grow, if the radius capped the step).
+    """
+    capped = length >= 0.99 * state.radius
+    if np.isinf(state.noise):
+        slope = float(state.gradient @ s)
+        q = float(g @ s) / slope if slope < 0 else 0.0
+        shrink, grow = q < -1.0, q > 0.5 and capped
+    else:
+        rho = actual / state.predicted if state.predicted < 0 else 1.0
+        shrink, grow = rho < _SHRINK_BELOW, rho > _GROW_ABOVE and capped
+    if shrink:
+        return 0.5 * state.radius
+    if grow:
+        return min(2.0 * state.radius, state.max_radius)
+    return state.radius
 
 
 def advance(state: QuasiNewtonState, x, value: float, gradient,
@@ -203,12 +230,7 @@ def advance(state: QuasiNewtonState, x, value: float, gradient,
         radius = 0.5 * min(state.radius, length) if length > 0 else 0.5 * state.radius
         base_x, base_f, base_g = state.x, state.value, state.gradient
     else:
-        rho = actual / state.predicted if state.predicted < 0 else 1.0
-        radius = state.radius
-        if rho < _SHRINK_BELOW:
-            radius = 0.5 * radius
-        elif rho > _GROW_ABOVE and length >= 0.99 * state.radius:
-            radius = min(2.0 * radius, state.max_radius)
+        radius = _new_radius(state, s, g, actual, length)
         base_x, base_f, base_g = x, float(value), g
     proposal, predicted = _propose(base_x, base_g, hessian, radius)
     if project is not None:

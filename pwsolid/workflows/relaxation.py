@@ -552,6 +552,15 @@ def _volume_problem(coords: _Coordinates, z_old, z_new, relax: RelaxationSetting
     return None
 
 
+def _energy_noise(relax: RelaxationSettings, settings: GroundStateSettings) -> float:
+    """Energy rises the optimiser ignores. With the atoms alone moving, the plane-wave set is
+    fixed and F is smooth: ten SCF tolerances. With the cell moving at a fixed cutoff, F
+    jumps whenever a plane wave crosses the cutoff (2e-4 Ha for a 0.1 % strain of silicon at
+    10 Ha, larger than the change the step was for), so the energy is no merit function:
+    every step is accepted and the gradient alone steers (infinite noise)."""
+    return math.inf if relax.moves_cell else 10 * settings.energy_tolerance
+
+
 def _free_coordinates(coords: _Coordinates, n_vars: int) -> int | None:
     """Number of symmetry-allowed directions (the trace of the projector); None when large."""
     if n_vars > 600:
@@ -634,7 +643,7 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
         if state is None:
             state = start_state(z, rec["enthalpy_Ha"], g, radius=min(0.2, relax.largest_step),
                                 max_radius=relax.largest_step, curvature=_INITIAL_CURVATURE,
-                                noise=10 * settings.energy_tolerance)
+                                noise=_energy_noise(relax, settings))
         else:
             state = advance(state, z, rec["enthalpy_Ha"], g, project=coords.project)
         rec["accepted"] = bool(np.array_equal(state.x, z))
@@ -680,7 +689,7 @@ def _density_of(ev):
 def relax_lattice(crystal: Crystal, settings: GroundStateSettings | None = None, *,
                   stress_threshold: float = 0.01 / HA_PER_BOHR3_GPA,
                   target_pressure: float = 0.0, max_steps: int = 30,
-                  **kwargs) -> RelaxationResult:
+                  basis_correction: bool = True, **kwargs) -> RelaxationResult:
     """Relax the cell of a crystal at fixed fractional positions, keeping its space group.
 
     For a cubic crystal the symmetrised stress is isotropic, so only the lattice
@@ -689,5 +698,6 @@ def relax_lattice(crystal: Crystal, settings: GroundStateSettings | None = None,
     go to :func:`relax_structure`.
     """
     relax = RelaxationSettings(moves="cell", stress_threshold=stress_threshold,
-                               target_pressure=target_pressure, max_steps=max_steps)
+                               target_pressure=target_pressure, max_steps=max_steps,
+                               basis_correction=basis_correction)
     return relax_structure(crystal, settings, relax, **kwargs)
