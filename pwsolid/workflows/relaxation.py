@@ -650,6 +650,7 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
         if rec["accepted"] or best is None:
             best = (k, cell, ev)
         previous = best[2]
+        messages += [f"step {k}: {m}" for m in ev.messages]
         if not ev.scf_converged:
             messages.append(f"step {k}: the SCF did not converge; its forces are approximate")
         converged = _meets(rec, relax)

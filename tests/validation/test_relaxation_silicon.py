@@ -73,8 +73,10 @@ def test_enthalpy_gradient_equals_finite_differences_of_the_enthalpy():
     h = 1e-3
     for direction in (atom, dilation, shear):
         numeric = (enthalpy(z0 + h * direction) - enthalpy(z0 - h * direction)) / (2 * h)
-        # h^2 error of the differences and the SCF tolerance: ~1e-8 Ha per unit step
-        assert float(g @ direction) == pytest.approx(numeric, abs=2e-7)
+        # the h^2 error of the differences (third derivatives ~0.1-1 Ha per unit^3):
+        # up to ~4e-7 measured; 2e-6 Ha/bohr is ~0.01 GPa for the strain directions, and
+        # a sign, factor or transpose error would show as 1e-3 or more
+        assert float(g @ direction) == pytest.approx(numeric, abs=2e-6)
 
 
 @pytest.mark.slow       # about nine SCFs of an 8-atom cell at a low cutoff
@@ -97,14 +99,18 @@ def test_displaced_silicon_cell_relaxes_back_to_diamond():
     assert np.linalg.norm(d, axis=1).max() < 5e-3
 
 
-@pytest.mark.slow       # a 7-point scan and a cell relaxation of 2-atom silicon
+@pytest.mark.slow       # a 7-point scan and a cell relaxation of 2-atom silicon (~20 s)
 def test_cell_relaxation_gives_the_lattice_constant_of_the_scan():
-    settings = pwsolid.GroundStateSettings(cutoff=10.0, kpoint_mesh=(3, 3, 3),
-                                           kpoint_shift=(0, 0, 0))
+    # 20 Ha: the basis-set stress (+0.07 GPa) is small enough for its estimate to carry
+    # the relaxation to the scan's minimum (at 10 Ha the estimate from a lower cutoff is
+    # off by tenths of a GPa: plane-wave shells drop out in steps); 2x2x2 half-offset:
+    # the agreement asked is between two routes at the same settings, not convergence
+    settings = pwsolid.GroundStateSettings(cutoff=20.0, kpoint_mesh=(2, 2, 2))
     si = pwsolid.diamond(pwsolid.angstrom(5.40), "Si")
     scan = scan_volumes(si, settings, volume_range=0.04, n_points=7)
     res = relax_lattice(si, settings, stress_threshold=0.002 / HA_PER_BOHR3_GPA)
     assert res.converged
+    # measured: scan 5.39294, relaxed 5.39229 angstrom (5.39088 without the correction)
     a_scan = scan.lattice_constants["a"] * BOHR_ANGSTROM
     a_relax = res.lattice_constants["a"] * BOHR_ANGSTROM
     # the agreement, 0.001 angstrom (about 0.05 GPa of pressure for silicon)
