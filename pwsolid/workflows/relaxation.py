@@ -100,6 +100,10 @@ class RelaxationSettings:
         :func:`pwsolid.stress.pulay_stress_estimate` (computed once, at the first
         step, and scaled as 1/Omega after), so that the cell relaxes to the minimum
         of the energy at a fixed cutoff, as an equation-of-state scan finds it.
+    adaptive_scf_tolerance : bool
+        When the atoms move, loosen the SCF tolerances of steps whose forces are far
+        above the threshold (see ``_step_settings``); the converged step is always
+        computed at the settings' own tolerances.
     """
 
     moves: str = "positions"
@@ -112,6 +116,7 @@ class RelaxationSettings:
     max_volume_change: float = 0.2
     warm_start: bool = True
     basis_correction: bool = True
+    adaptive_scf_tolerance: bool = True
 
     def __post_init__(self):
         def bad(name, why, value=None):
@@ -154,7 +159,8 @@ class RelaxationSettings:
                 "max_steps": self.max_steps, "keep_symmetry": bool(self.keep_symmetry),
                 "largest_step_bohr": self.largest_step,
                 "max_volume_change": self.max_volume_change, "warm_start": bool(self.warm_start),
-                "basis_correction": bool(self.basis_correction)}
+                "basis_correction": bool(self.basis_correction),
+                "adaptive_scf_tolerance": bool(self.adaptive_scf_tolerance)}
 
 
 # --- evaluations ---------------------------------------------------------------------
@@ -176,6 +182,8 @@ class Evaluation:
     scf_iterations : int
     scf_converged : bool
     messages : tuple of str
+    loose : bool
+        The SCF ran at loosened tolerances (an early step of a relaxation).
     """
 
     energy: float
@@ -185,6 +193,7 @@ class Evaluation:
     scf_iterations: int = 0
     scf_converged: bool = True
     messages: tuple = ()
+    loose: bool = False
 
 
 #: ``evaluator(crystal, previous) -> Evaluation``; ``previous`` is the last
@@ -224,6 +233,32 @@ def _distance(a: Crystal, b: Crystal) -> float:
     return float(np.linalg.norm(d @ b.lattice, axis=1).max() + np.abs(b.lattice - a.lattice).max())
 
 
+#: Loosest SCF tolerances of a relaxation step, as multiples of the settings' own, and
+#: absolute caps (density residual per electron; energy change, Ha).
+_LOOSEST_FACTOR = 1000.0
+_LOOSEST_DENSITY = 1e-3
+_LOOSEST_ENERGY = 1e-5
+
+
+def _step_settings(settings: GroundStateSettings, memory: dict, threshold: float | None):
+    """(settings of the next SCF, whether loosened). While the last largest force F is
+    over 3 times the threshold, the SCF tolerances are those of the settings times
+    F / (3 threshold) (capped): an early step's forces only steer, and a density error
+    of 1e-4 moves forces by about 1e-4 Ha/bohr, far below forces of 1e-2 (common practice
+    in geometry optimisers). A step that meets the thresholds with loose tolerances is
+    evaluated again at the settings' own before the relaxation counts as converged."""
+    if threshold is None or "force" not in memory:
+        return settings, False
+    factor = min(memory["force"] / (3.0 * threshold), _LOOSEST_FACTOR)
+    if factor <= 1.0:
+        return settings, False
+    return settings.replace(
+        density_tolerance=max(settings.density_tolerance,
+                              min(settings.density_tolerance * factor, _LOOSEST_DENSITY)),
+        energy_tolerance=max(settings.energy_tolerance,
+                             min(settings.energy_tolerance * factor, _LOOSEST_ENERGY))), True
+
+
 def _expected_start_residual(memory: dict, previous, crystal: Crystal) -> float | None:
     """The density residual a warm start should begin with: the last warm start's, scaled
     by the ratio of the step lengths (the density follows the atoms linearly). Measured on
@@ -238,7 +273,7 @@ def _expected_start_residual(memory: dict, previous, crystal: Crystal) -> float 
 
 def scf_evaluator(settings: GroundStateSettings, *, symmetrize: bool = True,
                   log: Callable[[str], None] | None = None, warm: bool = True,
-                  pulay: bool = False) -> Evaluator:
+                  pulay: bool = False, force_threshold: float | None = None) -> Evaluator:
     """The evaluator of a real relaxation: SCF, then analytic forces and stress.
 
     Parameters
@@ -254,6 +289,9 @@ def scf_evaluator(settings: GroundStateSettings, *, symmetrize: bool = True,
     pulay
         Add the basis-set stress estimated at the first step (scaled as 1/Omega):
         the stress of the energy at a fixed cutoff rather than a fixed plane-wave set.
+    force_threshold
+        When given, SCF tolerances follow the forces (see :func:`_step_settings`):
+        loose while the largest force is far above this, the settings' own near it.
     """
     from ..forces import atomic_forces
     from ..scf import ground_state, prepare
@@ -262,7 +300,8 @@ def scf_evaluator(settings: GroundStateSettings, *, symmetrize: bool = True,
     memory: dict = {}
 
     def evaluate(crystal: Crystal, previous) -> Evaluation:
-        setup = prepare(crystal, settings)
+        step_settings, loose = _step_settings(settings, memory, force_threshold)
+        setup = prepare(crystal, step_settings)
         density, waves = _warm_start(previous if warm else None, crystal, setup)
         expected = _expected_start_residual(memory, previous, crystal) if warm else None
         gs = ground_state(crystal, settings, setup=setup, log=log, initial_density=density,
@@ -272,6 +311,7 @@ def scf_evaluator(settings: GroundStateSettings, *, symmetrize: bool = True,
                           distance=_distance(previous.ground_state.crystal, crystal)
                           if isinstance(previous, Evaluation) else None)
         forces = atomic_forces(gs, symmetrize=symmetrize)
+        memory["force"] = forces.largest
         stress = stress_tensor(gs, symmetrize=symmetrize, pulay=pulay and "pulay" not in memory)
         tensor = np.asarray(stress.tensor, float)
         messages = list(gs.messages)
@@ -285,7 +325,7 @@ def scf_evaluator(settings: GroundStateSettings, *, symmetrize: bool = True,
             sigma_p, volume = memory["pulay"]
             tensor = tensor + sigma_p * (volume / crystal.volume)
         return Evaluation(gs.free_energy, np.asarray(forces.cartesian, float), tensor, gs,
-                          gs.iterations, gs.converged, tuple(messages))
+                          gs.iterations, gs.converged, tuple(messages), loose)
 
     return evaluate
 
@@ -610,7 +650,11 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
     coords = _Coordinates.of(crystal, relax)
     evaluate = evaluator or scf_evaluator(settings, symmetrize=relax.keep_symmetry, log=scf_log,
                                           warm=relax.warm_start,
-                                          pulay=relax.moves_cell and relax.basis_correction)
+                                          pulay=relax.moves_cell and relax.basis_correction,
+                                          force_threshold=(relax.force_threshold if
+                                                           relax.moves_atoms and
+                                                           relax.adaptive_scf_tolerance
+                                                           else None))
     fp = _relaxation_fingerprint(crystal, settings, relax)
     history, state, previous, messages = [], None, None, []
     loaded = _load_steps(checkpoint, fp)
@@ -637,6 +681,11 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
         cell = coords.crystal_at(z)
         ev = evaluate(cell, previous if relax.warm_start else None)
         rec = _record(k, cell, ev, relax, 0.0 if state is None else np.linalg.norm(z - state.x))
+        if ev.loose and _meets(rec, relax):         # confirm at the settings' own tolerances
+            loose_iterations = ev.scf_iterations
+            ev = evaluate(cell, ev if relax.warm_start else None)
+            rec = _record(k, cell, ev, relax, rec["step_length_bohr"])
+            rec["scf_iterations"] += loose_iterations
         history.append(rec)
         say(_progress_line(rec))
         g = coords.gradient(z, ev, relax.target_pressure)

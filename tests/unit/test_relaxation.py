@@ -229,3 +229,18 @@ def test_bad_relaxation_settings_name_their_key(kwargs, key):
     with pytest.raises(InputError) as err:
         RelaxationSettings(**kwargs)
     assert err.value.key == key
+
+
+def test_scf_tolerances_follow_the_forces():
+    from pwsolid.settings import GroundStateSettings
+    from pwsolid.workflows.relaxation import _step_settings
+
+    s = GroundStateSettings(energy_tolerance=1e-8, density_tolerance=1e-6)
+    assert _step_settings(s, {}, 1e-4) == (s, False)              # first step: as given
+    loose, flag = _step_settings(s, {"force": 3e-2}, 1e-4)          # 100 x the threshold
+    assert flag and loose.density_tolerance == pytest.approx(1e-4)
+    assert loose.energy_tolerance == pytest.approx(1e-6)
+    capped, _ = _step_settings(s, {"force": 10.0}, 1e-4)
+    assert capped.density_tolerance == 1e-3 and capped.energy_tolerance == 1e-5
+    assert _step_settings(s, {"force": 2e-4}, 1e-4) == (s, False)   # near the end: as given
+    assert _step_settings(s, {"force": 3e-2}, None) == (s, False)   # cell moves only
