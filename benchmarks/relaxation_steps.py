@@ -1,6 +1,7 @@
 """Benchmark: steps and SCF iterations of a relaxation, warm-started against cold.
 
-Run:  python benchmarks/relaxation_steps.py [--cutoff 12] [--mesh 2] [--seed 7] [--json FILE]
+Run:  python benchmarks/relaxation_steps.py [--cutoff 8] [--mesh 1] [--shift 0.5] [--seed 7]
+                                           [--fixed-tolerance] [--json FILE]
 
 The conventional cubic silicon cell (8 atoms, 5.43 angstrom) with every atom moved
 by 0.1 bohr in a random direction is relaxed (positions, symmetry not imposed)
@@ -12,6 +13,24 @@ step (the mean excludes the first, which is cold in both runs) and the ratio, wi
 wall seconds for orientation only (shared machine). Both runs use the same SCF
 tolerances per step: loosened while the forces are far above the threshold (the
 default), or the settings' own throughout with --fixed-tolerance.
+
+Measured (2 shared cores, one run each; the defaults: 8 Ha, one k-point at the
+half-offset corner, which avoids the 8-atom cell's degenerate levels at Gamma):
+
+====================================  =====  ===============================  =====
+run                                   moves  SCF iterations, steps 0..8       mean*
+====================================  =====  ===============================  =====
+warm, loosened early tolerances         8    13 7 8 7 7 7 8 7 7               7.25
+cold, loosened early tolerances         8    13 8 9 10 10 10 11 12 12         10.25
+warm, --fixed-tolerance                 8    13 10 11 9 9 9 9 8 7            9.0
+cold, --fixed-tolerance                 8    13 13 13 12 12 12 12 12 12       12.25
+====================================  =====  ===============================  =====
+
+(*) steps 1..8. Warm / cold: 0.71 (loosened), 0.73 (fixed). The 10-move target is met;
+the 40 % target is not: this SCF shrinks the density residual about threefold per
+iteration, so even a start 4e-4 from self-consistency (the last step) needs 7
+iterations to reach 1e-6, against 12 from scratch. Reusing the Pulay mixer's history
+from one step to the next would be the next lever (it needs a ground_state argument).
 """
 
 from __future__ import annotations
@@ -44,9 +63,9 @@ def displaced_silicon_cell(amount: float = 0.1, seed: int = 7) -> Crystal:
 
 def main(argv=None) -> dict:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    ap.add_argument("--cutoff", type=float, default=12.0)
-    ap.add_argument("--mesh", type=int, default=2)
-    ap.add_argument("--shift", type=float, default=0.0, help="k-mesh shift, 0 or 0.5")
+    ap.add_argument("--cutoff", type=float, default=8.0)
+    ap.add_argument("--mesh", type=int, default=1)
+    ap.add_argument("--shift", type=float, default=0.5, help="k-mesh shift, 0 or 0.5")
     ap.add_argument("--seed", type=int, default=7)
     ap.add_argument("--fixed-tolerance", action="store_true",
                     help="every SCF at the settings' tolerances (no loosening of early steps)")
