@@ -67,8 +67,6 @@ def run(args) -> int:
     checkpoint = (Path(args.checkpoint_file) if args.checkpoint_file
                   else out_dir / f"{stem}.relaxation-checkpoint.npz")
     writes = getattr(args, "writes_files", True)
-    if args.fresh and checkpoint.exists() and writes:
-        checkpoint.unlink()
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
     c = run_input.crystal
     say(f"{run_input.title or stem}: {c.n_atoms} atoms, moving {relax.moves}; forces below "
@@ -76,9 +74,10 @@ def run(args) -> int:
         f"{relax.stress_threshold * HA_PER_BOHR3_GPA:g} GPa of "
         f"{relax.target_pressure * HA_PER_BOHR3_GPA:g} GPa; at most {relax.max_steps} moves")
     try:
-        result = relax_structure(c, run_input.settings, relax,
-                                 checkpoint=checkpoint if writes else None, log=say,
-                                 scf_log=say if args.show_scf else None)
+        # every MPI process reads the checkpoint (they must all resume alike); the
+        # workflow lets only process 0 write it
+        result = relax_structure(c, run_input.settings, relax, checkpoint=checkpoint, log=say,
+                                 scf_log=say if args.show_scf else None, fresh=args.fresh)
     except KeyboardInterrupt:
         hint = (f"the finished steps are saved in {checkpoint}; run the same command to "
                 "continue" if checkpoint.exists() else "no step was finished")

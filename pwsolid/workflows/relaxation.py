@@ -48,6 +48,7 @@ import numpy as np
 from ..crystal import Crystal
 from ..errors import InputError
 from ..optimize import QuasiNewtonState, advance, start_state
+from ..parallel import world
 from ..safe_files import read_archive, write_archive
 from ..settings import GroundStateSettings
 from ..stress import cartesian_rotations
@@ -640,7 +641,8 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
                     relaxation: RelaxationSettings | None = None, *,
                     evaluator: Evaluator | None = None, checkpoint=None,
                     log: Callable[[str], None] | None = None,
-                    scf_log: Callable[[str], None] | None = None) -> RelaxationResult:
+                    scf_log: Callable[[str], None] | None = None,
+                    fresh: bool = False) -> RelaxationResult:
     """Relax the positions, the cell or both of a crystal (BFGS on the enthalpy).
 
     Parameters
@@ -657,7 +659,10 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
     checkpoint
         File written after every step; an existing one of the same relaxation is
         continued from (one of another relaxation raises InputError). Removed
-        when the relaxation converges.
+        when the relaxation converges. Under MPI every process reads it and only
+        process 0 writes it.
+    fresh
+        Ignore an existing checkpoint (it is overwritten by the first step).
     log, scf_log
         Receive the progress lines of the steps and of each SCF.
 
@@ -684,7 +689,8 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
                                                            else None))
     fp = _relaxation_fingerprint(crystal, settings, relax)
     history, state, previous, messages = [], None, None, []
-    loaded = _load_steps(checkpoint, fp)
+    loaded = None if fresh else _load_steps(checkpoint, fp)
+    writer = checkpoint is not None and world().rank == 0
     if loaded is not None:
         history, state, previous = loaded
         if len(history) - 1 >= relax.max_steps:
@@ -737,14 +743,14 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
         if problem:
             messages.append(problem)
             break
-        if checkpoint is not None:
+        if writer:
             _save_step(checkpoint, fp, history, state, _density_of(previous), best[1].volume)
         if k >= relax.max_steps:
             messages.append(f"the thresholds were not reached in {relax.max_steps} moves; "
                             "raise relaxation.max_steps (the run continues from its checkpoint)")
             break
         z = state.proposal
-    if converged and checkpoint is not None and Path(checkpoint).exists():
+    if converged and writer and Path(checkpoint).exists():
         Path(checkpoint).unlink()
     for m in messages:
         say(m)

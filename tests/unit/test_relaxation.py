@@ -244,3 +244,13 @@ def test_scf_tolerances_follow_the_forces():
     assert capped.density_tolerance == 1e-3 and capped.energy_tolerance == 1e-5
     assert _step_settings(s, {"force": 2e-4}, 1e-4) == (s, False)   # near the end: as given
     assert _step_settings(s, {"force": 3e-2}, None) == (s, False)   # cell moves only
+
+
+def test_fresh_ignores_a_checkpoint(tmp_path):
+    path = tmp_path / "relax.npz"
+    start = _displaced(face_centred_cubic(8.3, "Al").supercell((1, 1, 2)), 0.1, 9)
+    relax = RelaxationSettings(moves="both", max_steps=1, keep_symmetry=False)
+    relax_structure(start, relaxation=relax, evaluator=model, checkpoint=path)
+    again = relax_structure(start, relaxation=relax, evaluator=model, checkpoint=path,
+                            fresh=True)
+    assert not any("resumed" in m for m in again.messages) and len(again.steps) == 2
