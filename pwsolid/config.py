@@ -27,6 +27,7 @@ import numpy as np
 from .basis import fft_grid_for_cutoff
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
+from .relaxation_keys import RELAXATION_KEYS, read_relaxation
 from .resources import pseudopotential_dir
 from .settings import SETTING_KEYS, GroundStateSettings
 from .symmetry import reduced_lattice
@@ -157,98 +158,10 @@ def _build_schema() -> dict[str, dict[str, _Key]]:
     return schema
 
 
-# -- [relaxation]: what the relax-structure command moves and when it stops ------------
-# (one block: the keys, their unit parsing and the RelaxationSettings they build)
-_RELAXATION_KEYS = {
-    "moves": _Key("name", "what moves: positions, cell or both", default='"positions"'),
-    "force_threshold": _Key("quantity", "stop when every force is below this, e.g. "
-                            '"1e-4 Ha/bohr" or "0.003 eV/angstrom"', unit="force",
-                            default='"1e-4 Ha/bohr"'),
-    "stress_threshold": _Key("quantity", "...and every component of stress + target pressure "
-                             'is below this, e.g. "0.05 GPa"', unit="pressure",
-                             default='"0.05 GPa"'),
-    "target_pressure": _Key("quantity", "external pressure of the enthalpy F + P V",
-                            unit="pressure", default='"0 GPa"'),
-    "max_steps": _Key("integer", "largest number of moves (0: evaluate only)", default="40"),
-    "keep_symmetry": _Key("boolean", "keep the space group of the starting crystal",
-                          default="true"),
-    "largest_step": _Key("quantity", "largest step of the optimiser (atoms, and strain "
-                         "times V^(1/3))", unit="length", default='"0.4 bohr"'),
-    "basis_correction": _Key("boolean", "add the estimated basis-set (Pulay) stress, so the "
-                             "cell relaxes as a scan at this cutoff would", default="true"),
-}
-_PRESSURE_UNITS = {"gpa": 1.0, "mpa": 1e-3, "kbar": 0.1, "bar": 1e-4}
-_RELAXATION_UNIT_TEXT = {"force": "Ha/bohr, eV/angstrom (any energy unit / length unit)",
-                         "pressure": "GPa, MPa, kbar, bar, Ha/bohr^3, eV/angstrom^3"}
-
-
-def _force_or_pressure(text, kind: str, key: str, source) -> float:
-    """'1e-4 Ha/bohr' -> Ha/bohr, '0.05 GPa' -> Ha/bohr^3; bare numbers refused."""
-    from .units import ENERGY_UNITS, HA_PER_BOHR3_GPA, LENGTH_UNITS
-
-    accepted = f"accepted units: {_RELAXATION_UNIT_TEXT[kind]}"
-    if isinstance(text, bool) or not isinstance(text, str):
-        example = '"1e-4 Ha/bohr"' if kind == "force" else '"0.05 GPa"'
-        raise InputError(f"needs its unit, written as a string, e.g. {example}; {accepted}",
-                         key=key, value=text, source=source, has_value=True)
-    parts = text.split()
-    try:
-        number = float(parts[0]) if len(parts) == 2 else math.nan
-    except ValueError:
-        number = math.nan
-    unit = parts[1].lower() if len(parts) == 2 else ""
-    scale = None
-    if kind == "pressure" and unit in _PRESSURE_UNITS:
-        scale = _PRESSURE_UNITS[unit] / HA_PER_BOHR3_GPA
-    elif unit.count("/") == 1:
-        energy, length = unit.split("/")
-        power = 3 if kind == "pressure" else 1
-        if power == 3 and length.endswith("^3"):
-            length = length[:-2]
-        elif power == 3:
-            length = ""
-        if energy in ENERGY_UNITS and length in LENGTH_UNITS:
-            scale = ENERGY_UNITS[energy] / LENGTH_UNITS[length] ** power
-    if scale is None or not math.isfinite(number):
-        raise InputError(f"cannot read a number and a {kind} unit; {accepted}", key=key,
-                         value=text, source=source)
-    return number * scale
-
-
-def _relaxation(document: Mapping, source) -> tuple[Any, dict | None]:
-    """The RelaxationSettings of a [relaxation] table (defaults without one) and its echo."""
-    from .workflows.relaxation import RelaxationSettings
-
-    table = document.get("relaxation")
-    if table is None:
-        return RelaxationSettings(), None
-    reader = _Reader(source, Path.cwd())
-    names = {"force_threshold": "force", "stress_threshold": "pressure",
-             "target_pressure": "pressure"}
-    kwargs = {}
-    for key, value in table.items():
-        dotted = f"relaxation.{key}"
-        if key in names:
-            kwargs[key] = _force_or_pressure(value, names[key], dotted, source)
-        elif key == "largest_step":
-            kwargs[key] = reader._quantity(value, dotted, "length")
-        elif key == "max_steps":
-            kwargs[key] = reader._integer(value, dotted)
-        elif key in ("keep_symmetry", "basis_correction"):
-            if not isinstance(value, bool):
-                reader.fail("must be a TOML boolean: true or false (no quotes)", dotted, value)
-            kwargs[key] = value
-        else:
-            kwargs[key] = reader._text(value, dotted, "one of positions, cell, both")
-    try:
-        settings = RelaxationSettings(**kwargs)
-    except InputError as exc:
-        raise exc.with_source(source) from None
-    return settings, dict(table)
-
-
 _SCHEMA = _build_schema()
-_SCHEMA["relaxation"] = _RELAXATION_KEYS
+# -- [relaxation] of the relax-structure command: keys and reading in relaxation_keys.py
+_SCHEMA["relaxation"] = {key: _Key(kind, meaning, unit=unit, default=default)
+                         for key, kind, unit, default, meaning in RELAXATION_KEYS}
 _TOP_LEVEL = ("title", *_SCHEMA)
 
 
@@ -414,10 +327,9 @@ def parse_input(document: Mapping, *, source: str | None = None,
     reader = _Reader(source, Path(base_dir).absolute())
     run = reader.run(document, stem=Path(source).stem if source else "pwsolid")
     _check_cell_shape(run, source)
-    relaxation, echo = _relaxation(document, source)
-    if echo is not None:
-        run = replace(run, relaxation=relaxation, echo={**run.echo, "relaxation": echo})
-    return replace(run, relaxation=relaxation) if echo is None else run
+    table = document.get("relaxation")          # [relaxation]: see relaxation_keys.py
+    echo = run.echo if table is None else {**run.echo, "relaxation": dict(table)}
+    return replace(run, relaxation=read_relaxation(table, source), echo=echo)
 
 
 #: A cell whose FFT grid is this many times larger than that of its reduced
