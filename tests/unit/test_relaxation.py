@@ -233,7 +233,7 @@ def test_bad_relaxation_settings_name_their_key(kwargs, key):
 
 def test_scf_tolerances_follow_the_forces():
     from pwsolid.settings import GroundStateSettings
-    from pwsolid.workflows.relaxation import _step_settings
+    from pwsolid.workflows.relaxation_evaluation import _step_settings
 
     s = GroundStateSettings(energy_tolerance=1e-8, density_tolerance=1e-6)
     assert _step_settings(s, {}, 1e-4) == (s, False)              # first step: as given
