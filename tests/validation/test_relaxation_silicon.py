@@ -143,3 +143,25 @@ def test_hexagonal_cell_relaxes_c_over_a_to_the_energy_minimum():
 
     e0 = res.ground_state.free_energy
     assert energy_at(q - 0.06) > e0 + 2e-5 and energy_at(q + 0.06) > e0 + 2e-5
+
+
+def test_symmetric_displacement_relaxes_back_keeping_its_space_group():
+    # the second atom moved along [111]: the space group drops from Fd-3m to R-3m (166;
+    # inversion through the bond centre remains), which leaves that one coordinate free; the ideal diamond site (x = 1/4, where the
+    # site symmetry -43m forbids any force) is where it must come back to
+    si = pwsolid.diamond(10.26, "Si")
+    start = pwsolid.Crystal(si.lattice, si.species, [[0, 0, 0], [0.26, 0.26, 0.26]])
+    assert pwsolid.find_symmetry(start).space_group_number == 166
+    # a mesh through Gamma: the half-offset 2x2x2 mesh is not invariant under the cubic
+    # group of fcc, and the energies of R-3m and Fd-3m cells then differ by 5.6e-4 Ha
+    # at x = 0.2493 and 0.25 (measured), which would put a false minimum beside 1/4;
+    # 3x3x3, since on 2x2x2 this low-cutoff silicon has no gap at x = 0.26
+    settings = pwsolid.GroundStateSettings(cutoff=6.0, kpoint_mesh=(3, 3, 3),
+                                           kpoint_shift=(0, 0, 0))
+    res = relax_structure(start, settings, RelaxationSettings(force_threshold=1e-4))
+    assert res.converged
+    assert pwsolid.find_symmetry(res.crystal).space_group_number in (166, 227)
+    x = res.crystal.positions[1] - res.crystal.positions[0]
+    np.testing.assert_allclose(x, x[0], atol=1e-10)         # still on the [111] line
+    # 1e-4 Ha/bohr over the stiffness along [111] (~0.1 Ha/bohr^2) in a 10.26 bohr cell
+    assert abs(x[0] - 0.25) * np.linalg.norm(si.lattice.sum(axis=0)) < 5e-3
