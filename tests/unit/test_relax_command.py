@@ -92,3 +92,31 @@ def test_threshold_without_unit_exits_with_code_three(tmp_path, capsys):
     assert main(["relax-structure", str(path)]) == EXIT_INVALID_INPUT
     err = capsys.readouterr().err
     assert "relaxation.force_threshold" in err and "Ha/bohr" in err
+
+
+def test_interrupted_command_resumes_from_its_checkpoint(tmp_path, capsys, monkeypatch):
+    import pwsolid.workflows.relaxation as relaxation
+
+    path = _write(tmp_path, 'moves = "cell"\nstress_threshold = "0.05 GPa"\nmax_steps = 10\n'
+                            "basis_correction = false")
+    real = relaxation.scf_evaluator
+
+    def interrupted_after_two(*args, **kwargs):
+        evaluate, calls = real(*args, **kwargs), []
+
+        def wrapped(crystal, previous):
+            calls.append(1)
+            if len(calls) == 3:
+                raise KeyboardInterrupt
+            return evaluate(crystal, previous)
+        return wrapped
+
+    monkeypatch.setattr(relaxation, "scf_evaluator", interrupted_after_two)
+    assert main(["relax-structure", str(path), "--output-dir", str(tmp_path)]) == 130
+    assert "run the same command to continue" in capsys.readouterr().err
+    monkeypatch.setattr(relaxation, "scf_evaluator", real)
+    assert main(["relax-structure", str(path), "--output-dir", str(tmp_path)]) == EXIT_OK
+    assert "resumed from" in capsys.readouterr().out
+    doc = json.loads((tmp_path / "tiny-si.relaxation.json").read_text())
+    assert doc["converged"] is True and doc["steps"][0]["scf_iterations"] > 0
+    assert not (tmp_path / "tiny-si.relaxation-checkpoint.npz").exists()
