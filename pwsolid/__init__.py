@@ -30,6 +30,8 @@ from .workflows import (BandStructure, ConvergenceStudy, DOSResult, StructureCom
                         UniformGasReport, VolumeScan, band_structure, compare_structures,
                         converge_settings, density_of_states, empirical_band_structure,
                         scan_volumes, testbench_report, uniform_gas_table)
+from .workflows.relaxation import (RelaxationResult, RelaxationSettings, relax_lattice,
+                                   relax_structure)
 from .xc import FUNCTIONALS, get_functional, load_user_functional
 from .xc.conditions import check_exact_conditions
 
@@ -59,4 +61,5 @@ __all__ = [
     "density_of_states", "DOSResult", "testbench_report", "uniform_gas_table", "UniformGasReport",
     "load_user_functional", "check_exact_conditions", "WavefunctionStart",
     "AtomicForces", "atomic_forces",
+    "relax_structure", "relax_lattice", "RelaxationSettings", "RelaxationResult",
 ]

@@ -23,7 +23,7 @@ import difflib
 import math
 import tomllib
 from collections.abc import Mapping
-from dataclasses import MISSING, dataclass, fields
+from dataclasses import MISSING, dataclass, fields, replace
 from pathlib import Path
 from typing import Any
 
@@ -31,6 +31,7 @@ import numpy as np
 
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
+from .relaxation_keys import RELAXATION_KEYS, read_relaxation
 from .resources import inputs_dir, pseudopotential_dir
 from .settings import SETTINGS_TABLE, UNIT_TEXT, GroundStateSettings, Setting
 from .preflight import check_cell_shape
@@ -86,6 +87,7 @@ _KIND_TEXT = {
     "integers3": "3 integers", "numbers3": "3 numbers",
     "species": "string or list of strings", "vectors": "3 x 3 numbers",
     "atoms": "list of {species, position}",
+    "anything": "",
 }
 
 #: Keys of [crystal]: read by the reader's own code (they build a Crystal), declared here.
@@ -143,11 +145,21 @@ def _settings_tables() -> dict[str, tuple[Setting, ...]]:
 #: meaning, default) and add them here; the reader checks types, ranges and unknown
 #: keys, and ``input-keys`` and the README table list them. Read the checked values
 #: with ``_Reader.table_values`` in :meth:`_Reader.run` and carry them on RunInput.
+#: Keys of [relaxation] (the relax-structure command): declared here for the unknown-key
+#: checks and the documentation; their values (forces and pressures with units) are
+#: read and checked by :func:`pwsolid.relaxation_keys.read_relaxation`.
+RELAXATION_TABLE: tuple[Setting, ...] = tuple(
+    Setting(f"relaxation.{key}", None,
+            kind if kind in ("name", "integer", "boolean") else "anything", meaning,
+            unit=unit, default_text=default)
+    for key, kind, unit, default, meaning in RELAXATION_KEYS)
+
 INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     "crystal": CRYSTAL_KEYS,
     "pseudopotentials": (),
     **_settings_tables(),
     "output": OUTPUT_KEYS,
+    "relaxation": RELAXATION_TABLE,
 }
 _SETTINGS_SECTIONS = tuple(_settings_tables())
 _SCHEMA: dict[str, dict[str, Setting]] = {
@@ -251,6 +263,7 @@ class RunInput:
     echo: dict
     checkpoint_file: Path | None = None
     checkpoint_interval: int = 1
+    relaxation: Any = None     # RelaxationSettings of the [relaxation] table (or defaults)
 
 
 # -- reading -------------------------------------------------------------
@@ -324,7 +337,9 @@ def parse_input(document: Mapping, *, source: str | None = None,
     reader = _Reader(source, Path(base_dir).absolute())
     run = reader.run(document, stem=Path(source).stem if source else "pwsolid")
     _check_cell_shape(run, source)
-    return run
+    table = document.get("relaxation")          # [relaxation]: see relaxation_keys.py
+    echo = run.echo if table is None else {**run.echo, "relaxation": dict(table)}
+    return replace(run, relaxation=read_relaxation(table, source), echo=echo)
 
 
 def _check_cell_shape(run: RunInput, source: str | None) -> None:

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-__all__ = ["PALETTE", "house_style", "new_axes", "save_figure"]
+__all__ = ["PALETTE", "house_style", "new_axes", "save_figure", "save_and_close"]
 
 #: Line colours in order of use: slate blue, terracotta, moss, ochre, plum, teal.
 PALETTE = ("#3b5b7a", "#c0583b", "#6b8e3e", "#c9962b", "#7d4e7a", "#2f8c8c")
@@ -93,3 +93,11 @@ def save_figure(fig, stem, formats=("png", "svg")) -> list[Path]:
             os.replace(tmp, target)
             written.append(target)
     return written
+
+
+def save_and_close(fig, stem, formats=("png", "svg")) -> list[Path]:
+    """:func:`save_figure`, then close ``fig`` (also when saving fails)."""
+    try:
+        return save_figure(fig, stem, formats)
+    finally:
+        _pyplot().close(fig)

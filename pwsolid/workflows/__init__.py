@@ -1,6 +1,6 @@
 """Workflows: sequences of ground states (layer 5).
 
-Equation-of-state scans, convergence studies, structure comparisons, band
+Equation-of-state scans, relaxations, convergence studies, structure comparisons, band
 structures, densities of states and the uniform-gas testbench.
 """
 
@@ -8,6 +8,7 @@ from .band_structure import BandStructure, band_structure, empirical_band_struct
 from .convergence import ConvergenceStudy, converge_settings
 from .density_of_states import DOSResult, density_of_states
 from .equation_of_state import VolumeScan, scan_volumes
+from .relaxation import RelaxationResult, RelaxationSettings, relax_lattice, relax_structure
 from .structures import StructureComparison, compare_structures
 from .uniform_gas import UniformGasReport, testbench_report, uniform_gas_table
 
@@ -15,5 +16,6 @@ __all__ = [
     "BandStructure", "band_structure", "empirical_band_structure", "ConvergenceStudy",
     "converge_settings", "DOSResult", "density_of_states", "VolumeScan", "scan_volumes",
     "StructureComparison", "compare_structures", "UniformGasReport", "testbench_report",
-    "uniform_gas_table",
+    "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
+    "relax_structure",
 ]

@@ -169,6 +169,21 @@ CASES = [
      "pseudopotentials.Ge", "not in the crystal"),
     ("pseudopotential not a name", CRYSTAL + "[pseudopotentials]\nSi = 14\n",
      "pseudopotentials.Si", "file name string"),
+    # relaxation (the relax-structure command)
+    ("force threshold without unit", CRYSTAL + "[relaxation]\nforce_threshold = 1e-4\n",
+     "relaxation.force_threshold", 'needs its unit, written as a string, e.g. "1e-4 Ha/bohr"'),
+    ("force threshold in a pressure unit", CRYSTAL + '[relaxation]\nforce_threshold = "1 GPa"\n',
+     "relaxation.force_threshold", "accepted units: Ha/bohr, eV/angstrom"),
+    ("stress threshold without unit", CRYSTAL + '[relaxation]\nstress_threshold = "0.05"\n',
+     "relaxation.stress_threshold", "accepted units: GPa, MPa, kbar"),
+    ("negative relaxation steps", CRYSTAL + "[relaxation]\nmax_steps = -3\n",
+     "relaxation.max_steps", "integer from 0 to 10000"),
+    ("nothing free to relax", CRYSTAL + '[relaxation]\nmoves = "none"\n', "relaxation.moves",
+     "nothing free to move"),
+    ("unknown relaxation moves", CRYSTAL + '[relaxation]\nmoves = "atoms"\n',
+     "relaxation.moves", "accepted: positions, cell, both"),
+    ("misspelt relaxation key", CRYSTAL + '[relaxation]\nforce_treshold = "1e-4 Ha/bohr"\n',
+     "relaxation.force_treshold", "did you mean 'relaxation.force_threshold'?"),
 ]
 
 

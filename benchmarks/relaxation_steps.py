@@ -1,0 +1,105 @@
+"""Benchmark: steps and SCF iterations of a relaxation, warm-started against cold.
+
+Run:  python benchmarks/relaxation_steps.py [--cutoff 8] [--mesh 1] [--shift 0.5] [--seed 7]
+                                           [--fixed-tolerance] [--json FILE]
+
+The conventional cubic silicon cell (8 atoms, 5.43 angstrom) with every atom moved
+by 0.1 bohr in a random direction is relaxed (positions, symmetry not imposed)
+to a largest force of 1e-4 Ha/bohr, once with every SCF started from the previous
+step's density and orbitals and once with every SCF started from scratch.
+Targets (issue 16): at most 10 moves; the warm-started steps need at most 40 % of
+the SCF iterations of a cold start on average. Reports moves, SCF iterations per
+step (the mean excludes the first, which is cold in both runs) and the ratio, with
+wall seconds for orientation only (shared machine). Both runs use the same SCF
+tolerances per step: loosened while the forces are far above the threshold (the
+default), or the settings' own throughout with --fixed-tolerance.
+
+Measured (2 shared cores, one run each; the defaults: 8 Ha, one k-point at the
+half-offset corner, which avoids the 8-atom cell's degenerate levels at Gamma):
+
+====================================  =====  ===============================  =====
+run                                   moves  SCF iterations, steps 0..8       mean*
+====================================  =====  ===============================  =====
+warm, loosened early tolerances         8    13 7 8 7 7 7 8 7 7               7.25
+cold, loosened early tolerances         8    13 8 9 10 10 10 11 12 12         10.25
+warm, --fixed-tolerance                 8    13 10 11 9 9 9 9 8 7            9.0
+cold, --fixed-tolerance                 8    13 13 13 12 12 12 12 12 12       12.25
+====================================  =====  ===============================  =====
+
+(*) steps 1..8. Warm / cold: 0.71 (loosened), 0.73 (fixed). The 10-move target is met;
+the 40 % target is not: this SCF shrinks the density residual about threefold per
+iteration, so even a start 4e-4 from self-consistency (the last step) needs 7
+iterations to reach 1e-6, against 12 from scratch. Reusing the Pulay mixer's history
+from one step to the next would be the next lever (it needs a ground_state argument).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import time
+
+import numpy as np
+
+import pwsolid
+from pwsolid.crystal import Crystal
+from pwsolid.workflows.relaxation import RelaxationSettings, relax_structure
+
+#: Fractional positions of the 8 atoms of the conventional diamond cell.
+DIAMOND_CUBIC = np.array([[0, 0, 0], [0, 0.5, 0.5], [0.5, 0, 0.5], [0.5, 0.5, 0],
+                          [0.25, 0.25, 0.25], [0.25, 0.75, 0.75], [0.75, 0.25, 0.75],
+                          [0.75, 0.75, 0.25]])
+
+
+def displaced_silicon_cell(amount: float = 0.1, seed: int = 7) -> Crystal:
+    """Cubic 8-atom silicon cell with each atom moved by ``amount`` bohr at random."""
+    a = pwsolid.angstrom(5.43)
+    rng = np.random.default_rng(seed)
+    shift = rng.normal(size=(8, 3))
+    shift *= amount / np.linalg.norm(shift, axis=1)[:, None]
+    cart = DIAMOND_CUBIC * a + shift
+    return Crystal(a * np.eye(3), ["Si"] * 8, cart / a)
+
+
+def main(argv=None) -> dict:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--cutoff", type=float, default=8.0)
+    ap.add_argument("--mesh", type=int, default=1)
+    ap.add_argument("--shift", type=float, default=0.5, help="k-mesh shift, 0 or 0.5")
+    ap.add_argument("--seed", type=int, default=7)
+    ap.add_argument("--fixed-tolerance", action="store_true",
+                    help="every SCF at the settings' tolerances (no loosening of early steps)")
+    ap.add_argument("--json", help="also write the figures to this file")
+    args = ap.parse_args(argv)
+    settings = pwsolid.GroundStateSettings(cutoff=args.cutoff, kpoint_mesh=(args.mesh,) * 3,
+                                           kpoint_shift=(args.shift,) * 3)
+    start = displaced_silicon_cell(seed=args.seed)
+    report = {"command": f"python benchmarks/relaxation_steps.py --cutoff {args.cutoff:g} "
+                         f"--mesh {args.mesh} --shift {args.shift:g} --seed {args.seed}"
+                         + (" --fixed-tolerance" if args.fixed_tolerance else "")}
+    for label, warm in (("warm", True), ("cold", False)):
+        relax = RelaxationSettings(moves="positions", force_threshold=1e-4, max_steps=30,
+                                   keep_symmetry=False, warm_start=warm,
+                                   adaptive_scf_tolerance=not args.fixed_tolerance)
+        t0 = time.perf_counter()
+        res = relax_structure(start, settings, relax, log=print)
+        iterations = [s["scf_iterations"] for s in res.steps]
+        report[label] = {"converged": res.converged, "moves": res.n_moves,
+                         "final_force_Ha_per_bohr": res.final["largest_force_Ha_per_bohr"],
+                         "scf_iterations": iterations,
+                         "mean_iterations_after_first": float(np.mean(iterations[1:]))
+                         if len(iterations) > 1 else None,
+                         "seconds": time.perf_counter() - t0}
+    w, c = report["warm"], report["cold"]
+    if w["mean_iterations_after_first"] and c["mean_iterations_after_first"]:
+        report["warm_over_cold_iterations"] = (w["mean_iterations_after_first"]
+                                               / c["mean_iterations_after_first"])
+    print(json.dumps(report, indent=1))
+    if args.json:
+        with open(args.json, "w") as fh:
+            json.dump(report, fh, indent=1)
+    return report
+
+
+if __name__ == "__main__":
+    main()

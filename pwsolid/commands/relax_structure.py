@@ -1,0 +1,156 @@
+"""``pwsolid relax-structure INPUT``: move atoms and cell to their forces' and stress's rest.
+
+Reads an ordinary ground-state input with an optional ``[relaxation]`` table
+(``pwsolid input-keys`` lists its keys), calls
+:func:`pwsolid.workflows.relaxation.relax_structure` and writes, into the output
+directory (default: where the input's result file would go):
+
+* ``<stem>.relaxation.json``: the trajectory document (schema ``pwsolid.relaxation/1``);
+* ``<stem>.relaxation.png`` and ``.svg``: energy, largest force and stress per step;
+* ``<stem>.relaxed.toml``: the final structure as an input file that runs as it is;
+* ``<stem>.relaxation-checkpoint.npz`` while running: re-running the same command
+  after an interruption continues from the last finished step (``--fresh`` starts over).
+
+Exit codes: 0 converged; 4 when the thresholds were not reached in the allowed
+steps or the cell collapsed (the documents are still written, with
+``converged: false``); 3 for invalid input; 130 when interrupted.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+
+from ..errors import EXIT_NOT_CONVERGED, EXIT_OK
+from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA
+
+__all__ = ["register", "run", "relaxed_input_text"]
+
+_SETTINGS_SECTIONS = ("basis", "brillouin_zone", "exchange_correlation", "occupations", "spin",
+                      "self_consistency")
+
+
+def register(subparsers) -> None:
+    p = subparsers.add_parser(
+        "relax-structure", help="relax atomic positions and/or the cell (BFGS)",
+        description="Move the atoms, the cell or both of a ground-state input until every "
+                    "force and the stress (at a target pressure) are below the thresholds of "
+                    "the input's [relaxation] table, keeping the space group. Re-running the "
+                    "same command resumes an interrupted relaxation.",
+        epilog="Writes <stem>.relaxation.json, <stem>.relaxation.png/.svg and "
+               "<stem>.relaxed.toml. Exit code 4 when the thresholds were not reached.")
+    p.add_argument("input", help="ground-state input file (TOML) with an optional [relaxation]")
+    p.add_argument("--output-dir", metavar="DIR",
+                   help="directory for the files written (default: where the input's result "
+                        "file would go)")
+    p.add_argument("--checkpoint-file", metavar="FILE",
+                   help="where the per-step checkpoint goes (default "
+                        "<stem>.relaxation-checkpoint.npz in the output directory)")
+    p.add_argument("--fresh", action="store_true", help="ignore an existing checkpoint")
+    p.add_argument("--show-scf", action="store_true", help="also print every SCF iteration")
+    p.add_argument("--quiet", action="store_true", help="print only the summary")
+    p.set_defaults(handler=run)
+
+
+def run(args) -> int:
+    from ..config import load_input
+    from ..plots.relaxation import RelaxationPlot
+    from ..results import write_json
+    from ..safe_files import atomic_write_bytes
+    from ..workflows.relaxation import relax_structure
+
+    run_input = load_input(args.input)
+    relax = run_input.relaxation
+    stem = Path(args.input).stem
+    out_dir = Path(args.output_dir) if args.output_dir else Path(run_input.result_file).parent
+    checkpoint = (Path(args.checkpoint_file) if args.checkpoint_file
+                  else out_dir / f"{stem}.relaxation-checkpoint.npz")
+    writes = getattr(args, "writes_files", True)
+    say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
+    c = run_input.crystal
+    say(f"{run_input.title or stem}: {c.n_atoms} atoms, moving {relax.moves}; forces below "
+        f"{relax.force_threshold:.2e} Ha/bohr, stress within "
+        f"{relax.stress_threshold * HA_PER_BOHR3_GPA:g} GPa of "
+        f"{relax.target_pressure * HA_PER_BOHR3_GPA:g} GPa; at most {relax.max_steps} moves")
+    try:
+        # every MPI process reads the checkpoint (they must all resume alike); the
+        # workflow lets only process 0 write it
+        result = relax_structure(c, run_input.settings, relax, checkpoint=checkpoint, log=say,
+                                 scf_log=say if args.show_scf else None, fresh=args.fresh)
+    except KeyboardInterrupt:
+        hint = (f"the finished steps are saved in {checkpoint}; run the same command to "
+                "continue" if checkpoint.exists() else "no step was finished")
+        print(f"pwsolid: interrupted; {hint}", file=sys.stderr)
+        return 130
+    doc = result.as_document()
+    doc["title"] = run_input.title
+    doc["input"] = run_input.echo
+    paths = {"trajectory": out_dir / f"{stem}.relaxation.json",
+             "relaxed input": out_dir / f"{stem}.relaxed.toml"}
+    figures = []
+    if writes:
+        write_json(paths["trajectory"], doc)
+        text = relaxed_input_text(run_input, result.crystal, result.converged, args.input)
+        atomic_write_bytes(paths["relaxed input"], text.encode())
+        figures = RelaxationPlot.from_result(result, title=run_input.title).save(
+            out_dir / f"{stem}.relaxation")
+    print("\n".join(result.summary_lines()))
+    for name, path in paths.items():
+        print(f"{name.capitalize()} written to {path}")
+    if figures:
+        print("Figure written to " + ", ".join(str(f) for f in figures))
+    if not result.converged:
+        print("pwsolid: " + (result.messages[-1] if result.messages else "not converged"),
+              file=sys.stderr)
+        return EXIT_NOT_CONVERGED
+    return EXIT_OK
+
+
+# -- the relaxed structure as an input file ----------------------------------------------
+
+def _toml_value(value) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, (int, float)):
+        return repr(value)
+    if isinstance(value, str):
+        return json.dumps(value)           # a TOML basic string uses JSON's escapes
+    if isinstance(value, (list, tuple)):
+        return "[" + ", ".join(_toml_value(v) for v in value) + "]"
+    if isinstance(value, dict):
+        return "{ " + ", ".join(f"{k} = {_toml_value(v)}" for k, v in value.items()) + " }"
+    raise TypeError(f"cannot write {type(value).__name__} to TOML")
+
+
+def _table(name: str, entries: dict) -> list[str]:
+    rows = [f"{k} = {_toml_value(v)}" for k, v in entries.items() if v is not None]
+    return [f"[{name}]", *rows, ""] if rows else []
+
+
+def relaxed_input_text(run_input, crystal, converged: bool, source="") -> str:
+    """An input file for ``crystal`` with every other setting of ``run_input``.
+
+    The cell is written explicitly (lattice vectors in angstrom, fractional
+    positions at full precision); the settings, pseudopotentials and relaxation
+    keys come from the input's echo, with automatic choices left out so that
+    they stay automatic. Output names default to the new file's stem.
+    """
+    echo = run_input.echo
+    lines = [f"# Structure relaxed by pwsolid relax-structure from {source or 'an input'}"
+             f" ({'converged' if converged else 'NOT converged: the lowest-enthalpy step'}).",
+             f"title = {_toml_value('relaxed: ' + (run_input.title or Path(str(source)).stem))}",
+             ""]
+    atoms = [{"species": s, "position": [float(x) for x in p]}
+             for s, p in zip(crystal.species, crystal.positions)]
+    lines += ["[crystal]", 'prototype = "explicit"', 'lattice_constant = "1 angstrom"',
+              "lattice_vectors = [",
+              *[f"  {_toml_value([float(x) for x in row])}," for row in
+                crystal.lattice * BOHR_ANGSTROM], "]",
+              "atoms = [", *[f"  {_toml_value(a)}," for a in atoms], "]", ""]
+    lines += _table("pseudopotentials", echo.get("pseudopotentials", {}))
+    for section in _SETTINGS_SECTIONS:
+        lines += _table(section, echo.get(section, {}))
+    if "relaxation" in echo:
+        lines += _table("relaxation", echo["relaxation"])
+    return "\n".join(lines)

@@ -1,0 +1,122 @@
+"""The relax-structure command end to end, and its symmetry with the Python function.
+
+A tiny silicon input (5 Ha, 2x2x2 through Gamma, a local pseudopotential) keeps the
+runs to a few SCFs. The numbers are not checked against the world here
+(tests/validation does that); the command must write its documents, say when it
+did not converge (exit code 4), and write a relaxed input that runs as it is.
+"""
+
+import json
+
+import numpy as np
+import pytest
+
+from pwsolid.cli import main
+from pwsolid.config import load_input
+from pwsolid.errors import EXIT_INVALID_INPUT, EXIT_NOT_CONVERGED, EXIT_OK
+from pwsolid.workflows.relaxation import relax_structure
+
+TINY = """
+title = "Brightfilm relaxation check"
+[crystal]
+prototype = "diamond"
+lattice_constant = "5.05 angstrom"
+species = ["Si"]
+[pseudopotentials]
+Si = "Si-appelbaum-hamann.toml"
+[basis]
+cutoff = "5 Ha"
+[brillouin_zone]
+mesh = [2, 2, 2]
+shift = [0, 0, 0]
+[self_consistency]
+energy_tolerance = "1e-8 Ha"
+[relaxation]
+{relaxation}
+"""
+
+
+def _write(tmp_path, relaxation: str, name="tiny-si.toml"):
+    path = tmp_path / name
+    path.write_text(TINY.format(relaxation=relaxation))
+    return path
+
+
+@pytest.mark.slow      # three relaxations (one SCF each): about 7 s on a shared machine
+def test_symmetric_positions_need_no_move_and_the_relaxed_input_runs(tmp_path, capsys):
+    path = _write(tmp_path, 'moves = "positions"\nforce_threshold = "0.003 eV/angstrom"\n'
+                            "max_steps = 0")
+    assert main(["relax-structure", str(path), "--output-dir", str(tmp_path)]) == EXIT_OK
+    doc = json.loads((tmp_path / "tiny-si.relaxation.json").read_text())
+    assert doc["converged"] is True and doc["moves_made"] == 0
+    assert doc["settings"]["force_threshold_Ha_per_bohr"] == pytest.approx(
+        0.003 / 27.211386 * 0.529177, rel=1e-5)         # eV/angstrom -> Ha/bohr (CODATA)
+    assert (tmp_path / "tiny-si.relaxation.png").exists()
+    relaxed = tmp_path / "tiny-si.relaxed.toml"
+    again = load_input(relaxed)
+    np.testing.assert_allclose(again.crystal.lattice, load_input(path).crystal.lattice,
+                               atol=1e-10)
+    assert again.relaxation.force_threshold == pytest.approx(doc["settings"][
+        "force_threshold_Ha_per_bohr"])
+    # the written file runs as it is, and the same structure needs no move
+    assert main(["relax-structure", str(relaxed), "--output-dir", str(tmp_path)]) == EXIT_OK
+    doc2 = json.loads((tmp_path / "tiny-si.relaxed.relaxation.json").read_text())
+    assert doc2["moves_made"] == 0
+    # the Python function on the same parsed objects gives the same numbers
+    run = load_input(path)
+    res = relax_structure(run.crystal, run.settings, run.relaxation)
+    assert res.final["energy_Ha"] == pytest.approx(doc["steps"][0]["energy_Ha"], abs=1e-9)
+    out = capsys.readouterr().out
+    assert "Relaxation converged after 0 moves" in out
+
+
+def test_unconverged_relaxation_writes_documents_and_exits_with_code_four(tmp_path, capsys):
+    path = _write(tmp_path, 'moves = "cell"\nstress_threshold = "0.0001 GPa"\nmax_steps = 1\n'
+                            "basis_correction = false")
+    assert main(["relax-structure", str(path), "--output-dir", str(tmp_path)]) == \
+        EXIT_NOT_CONVERGED
+    doc = json.loads((tmp_path / "tiny-si.relaxation.json").read_text())
+    assert doc["converged"] is False and len(doc["steps"]) == 2
+    assert "not converged" in (tmp_path / "tiny-si.relaxed.toml").read_text().splitlines()[0] \
+        .lower()
+    assert "max_steps" in capsys.readouterr().err
+    # the checkpoint stays; a re-run at the same limit says what to do
+    assert (tmp_path / "tiny-si.relaxation-checkpoint.npz").exists()
+    assert main(["relax-structure", str(path), "--output-dir", str(tmp_path)]) == \
+        EXIT_INVALID_INPUT
+    assert "raise relaxation.max_steps" in capsys.readouterr().err
+
+
+def test_threshold_without_unit_exits_with_code_three(tmp_path, capsys):
+    path = _write(tmp_path, "force_threshold = 0.0001")
+    assert main(["relax-structure", str(path)]) == EXIT_INVALID_INPUT
+    err = capsys.readouterr().err
+    assert "relaxation.force_threshold" in err and "Ha/bohr" in err
+
+
+def test_interrupted_command_resumes_from_its_checkpoint(tmp_path, capsys, monkeypatch):
+    import pwsolid.workflows.relaxation as relaxation
+
+    path = _write(tmp_path, 'moves = "cell"\nstress_threshold = "0.05 GPa"\nmax_steps = 10\n'
+                            "basis_correction = false")
+    real = relaxation.scf_evaluator
+
+    def interrupted_after_two(*args, **kwargs):
+        evaluate, calls = real(*args, **kwargs), []
+
+        def wrapped(crystal, previous):
+            calls.append(1)
+            if len(calls) == 3:
+                raise KeyboardInterrupt
+            return evaluate(crystal, previous)
+        return wrapped
+
+    monkeypatch.setattr(relaxation, "scf_evaluator", interrupted_after_two)
+    assert main(["relax-structure", str(path), "--output-dir", str(tmp_path)]) == 130
+    assert "run the same command to continue" in capsys.readouterr().err
+    monkeypatch.setattr(relaxation, "scf_evaluator", real)
+    assert main(["relax-structure", str(path), "--output-dir", str(tmp_path)]) == EXIT_OK
+    assert "resumed from" in capsys.readouterr().out
+    doc = json.loads((tmp_path / "tiny-si.relaxation.json").read_text())
+    assert doc["converged"] is True and doc["steps"][0]["scf_iterations"] > 0
+    assert not (tmp_path / "tiny-si.relaxation-checkpoint.npz").exists()
