@@ -9,16 +9,13 @@
 
 Saved records (checkpoints, densities, scan points, relaxation steps, ...) are
 built on these by the one store, :mod:`pwsolid.store`, which adds the fingerprint
-of the calculation. :func:`write_archive` / :func:`read_archive` (a format name
-and an array checksum, no fingerprint) remain for code not yet moved to the store.
+of the calculation.
 """
 
 from __future__ import annotations
 
 import contextlib
 import hashlib
-import io
-import json
 import os
 import tempfile
 import threading
@@ -26,10 +23,7 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError
-
-__all__ = ["atomic_write_bytes", "array_checksum", "new_file_mode", "write_archive",
-           "read_archive"]
+__all__ = ["atomic_write_bytes", "array_checksum", "new_file_mode"]
 
 _UMASK_LOCK = threading.Lock()
 
@@ -70,37 +64,3 @@ def array_checksum(arrays: dict) -> str:
         h.update(str(a.shape).encode())
         h.update(a.tobytes())
     return h.hexdigest()
-
-
-def write_archive(path, fmt: str, arrays: dict, metadata: dict | None = None) -> None:
-    """Save arrays and a metadata record (format, checksum, ``metadata``) atomically."""
-    meta = dict(metadata or {})
-    meta["format"] = fmt
-    meta["checksum"] = array_checksum(arrays)
-    buf = io.BytesIO()
-    np.savez_compressed(buf, metadata=np.array(json.dumps(meta)), **arrays)
-    atomic_write_bytes(path, buf.getvalue())
-
-
-def read_archive(path, fmt: str, what: str = "file") -> tuple[dict, dict]:
-    """Read an archive written by :func:`write_archive`; returns ``(arrays, metadata)``."""
-    src = str(path)
-    try:
-        with open(path, "rb") as fh, np.load(fh, allow_pickle=False) as data:
-            arrays = {k: data[k] for k in data.files}
-    except FileNotFoundError:
-        raise InputError(f"{what} not found", source=src) from None
-    except Exception:  # noqa: BLE001 - zip, format and OS errors all mean 'unreadable'
-        # numpy's own message suggests unpickling, which is never safe here: not repeated
-        raise InputError(f"not a readable {what} (truncated, corrupted or foreign bytes)",
-                         source=src) from None
-    try:
-        meta = json.loads(str(arrays.pop("metadata")))
-    except (KeyError, ValueError):
-        raise InputError(f"not a pwsolid {what} (no metadata)", source=src) from None
-    if meta.get("format") != fmt:
-        raise InputError(f"unsupported {what} format {meta.get('format')!r}; this version "
-                         f"reads {fmt}", source=src)
-    if array_checksum(arrays) != meta.get("checksum"):
-        raise InputError(f"the {what} is corrupted (checksum mismatch)", source=src)
-    return arrays, meta

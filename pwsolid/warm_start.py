@@ -147,8 +147,9 @@ def transfer_density(density: np.ndarray, old_volume: float, new_shape,
 
     Parameters
     ----------
-    density : ndarray (n1, n2, n3) float64
-        Density (bohr^-3) on the old cell's FFT grid.
+    density : ndarray (n1, n2, n3) or (n_spin, n1, n2, n3) float64
+        Density (bohr^-3) on the old cell's FFT grid; spin densities are carried
+        channel by channel, each keeping its own electron count.
     old_volume, new_volume : float
         Cell volumes, bohr^3.
     new_shape : 3 ints
@@ -156,7 +157,7 @@ def transfer_density(density: np.ndarray, old_volume: float, new_shape,
 
     Returns
     -------
-    ndarray, shape ``new_shape``, float64
+    ndarray, shape ``new_shape`` (with the spin axis first, if any), float64
         The density at the same fractional coordinates times V_old / V_new.
 
     Notes
@@ -169,6 +170,9 @@ def transfer_density(density: np.ndarray, old_volume: float, new_shape,
     """
     density = np.asarray(density, float)
     new_shape = tuple(int(n) for n in new_shape)
+    if density.ndim == 4:
+        return np.stack([transfer_density(d, old_volume, new_shape, new_volume)
+                         for d in density])
     factor = float(old_volume) / float(new_volume)
     if density.shape == new_shape:
         return density * factor

@@ -107,17 +107,6 @@ def _scf_solver(crystal: Crystal, settings: GroundStateSettings,
                         initial_wavefunctions=waves, start_residual=expected)
 
 
-def _fingerprint(crystal: Crystal, settings: GroundStateSettings) -> tuple[str, dict]:
-    """(digest, values) of the store's fingerprint of a scan's input crystal and settings,
-    for workflows that key their own files by it (see :mod:`pwsolid.store`)."""
-    from ..preflight import load_pseudopotentials
-    from ..store import fingerprint
-
-    pps = load_pseudopotentials(crystal.species, settings.pseudopotentials)
-    fp = fingerprint(crystal, settings, pps)
-    return fp.digest, dict(fp.values)
-
-
 # --- one scan's state ---------------------------------------------------------------
 
 class _ScanRun:

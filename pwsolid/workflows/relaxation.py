@@ -49,19 +49,19 @@ from ..crystal import Crystal
 from ..errors import InputError
 from ..optimize import QuasiNewtonState, advance, start_state
 from ..parallel import world
-from ..safe_files import read_archive, write_archive
 from ..settings import GroundStateSettings
+from ..store import Fingerprint, fingerprint, load_record, save_record
 from ..stress import cartesian_rotations
 from ..symmetry import atom_permutations, find_symmetry, identity_only
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
-from .equation_of_state import _fingerprint, lattice_lengths
-from .relaxation_evaluation import Evaluation, Evaluator, _density_of, scf_evaluator
+from ..warm_start import WarmStart
+from .cell_geometry import lattice_lengths
+from .relaxation_evaluation import Evaluation, Evaluator, scf_evaluator, warm_start_of
 
 __all__ = ["RelaxationSettings", "Evaluation", "RelaxationResult", "relax_structure",
            "relax_lattice", "scf_evaluator", "RELAXATION_SCHEMA", "MOVES"]
 
 RELAXATION_SCHEMA = "pwsolid.relaxation/1"
-_CHECKPOINT_FORMAT = "pwsolid.relaxation-checkpoint/1"
 #: What may move: the atoms, the cell, or both.
 MOVES = ("positions", "cell", "both")
 #: Initial Hessian model, Ha/bohr^2: a typical bond-stretching stiffness of a solid,
@@ -239,38 +239,59 @@ class _Coordinates:
         return v
 
 
-# --- persistence (two small functions, so that a store can take them over) ----------
+# --- persistence: relaxation-step records of the one store -----------------------
 
-def _save_step(path, fingerprint: str, history: list, state: QuasiNewtonState,
-               density: np.ndarray | None, volume: float) -> None:
-    """Write the finished steps, the optimiser state and the latest density atomically."""
+#: Relaxation settings that do not enter a checkpoint's fingerprint: a resumed run may
+#: allow more moves.
+_PATH_ONLY_RELAXATION = ("max_steps",)
+
+
+def _relaxation_fingerprint(crystal: Crystal, settings: GroundStateSettings,
+                            relax: RelaxationSettings) -> Fingerprint:
+    """The store's fingerprint of the starting crystal and its ground-state settings
+    (no FFT grid: the cell moves), extended by one ``relaxation.<key>`` field per
+    relaxation setting, so that a refusal names the setting that differs."""
+    from ..preflight import load_pseudopotentials
+
+    pps = load_pseudopotentials(crystal.species, settings.pseudopotentials)
+    ground = fingerprint(crystal, settings, pps)
+    mine = {f"relaxation.{k}": v for k, v in relax.as_dict().items()
+            if k not in _PATH_ONLY_RELAXATION}
+    return Fingerprint(json.loads(json.dumps({**ground.values, **mine})))
+
+
+def _save_step(path, fp: Fingerprint, history: list, state: QuasiNewtonState,
+               warm: WarmStart | None) -> None:
+    """Write the finished steps, the optimiser state and the density the next step
+    starts from atomically (a ``relaxation-step`` record)."""
     arrays = {f"optimizer_{k}": v for k, v in state.as_arrays().items()}
-    if density is not None:
-        arrays["density"] = np.asarray(density, float)
-    meta = {"fingerprint": fingerprint, "history": history, "density_volume_bohr3": volume}
-    write_archive(path, _CHECKPOINT_FORMAT, arrays, json.loads(json.dumps(meta, default=float)))
+    meta = {"history": history}
+    if warm is not None:
+        arrays["density"] = np.asarray(warm.density, float)
+        meta["density_volume_bohr3"] = warm.volume
+    save_record(path, "relaxation-step", fp, arrays, meta)
 
 
-def _load_steps(path, fingerprint: str):
-    """(history, optimiser state, (density, volume) or None) from a checkpoint, or None
-    when there is none; InputError for one of another relaxation or a corrupted one."""
+def _load_steps(path, fp: Fingerprint):
+    """(history, optimiser state, warm start or None) from a checkpoint, or None when
+    there is none; InputError (naming what differs) for one of another relaxation,
+    and for a damaged, foreign or future one."""
     if path is None or not Path(path).exists():
         return None
-    arrays, meta = read_archive(path, _CHECKPOINT_FORMAT, "relaxation checkpoint")
-    if meta.get("fingerprint") != fingerprint:
-        raise InputError("the relaxation checkpoint belongs to another crystal or other "
-                         "settings; delete it or pass --fresh to start over", source=str(path))
-    state = QuasiNewtonState.from_arrays({k[len("optimizer_"):]: v for k, v in arrays.items()
-                                          if k.startswith("optimizer_")})
-    density = arrays.get("density")
-    start = None if density is None else (density, float(meta["density_volume_bohr3"]))
-    return list(meta["history"]), state, start
-
-
-def _relaxation_fingerprint(crystal, settings, relax: RelaxationSettings) -> str:
-    ground = _fingerprint(crystal, settings)[0] if settings is not None else ""
-    mine = {k: v for k, v in relax.as_dict().items() if k != "max_steps"}
-    return ground + ":" + json.dumps(mine, sort_keys=True)
+    record = load_record(path, "relaxation-step", fp)
+    meta = record.metadata
+    try:
+        state = QuasiNewtonState.from_arrays({k[len("optimizer_"):]: v
+                                              for k, v in record.arrays.items()
+                                              if k.startswith("optimizer_")})
+        history = list(meta["history"])
+        density = record.arrays.get("density")
+        start = None if density is None else WarmStart(density,
+                                                       float(meta["density_volume_bohr3"]))
+    except (KeyError, TypeError, ValueError):
+        raise InputError("the relaxation checkpoint lacks the optimiser state or the steps; "
+                         "delete it or pass --fresh to start over", source=str(path)) from None
+    return history, state, start
 
 
 # --- the result ----------------------------------------------------------------------
@@ -451,7 +472,7 @@ def _default_evaluator(settings: GroundStateSettings, relax: RelaxationSettings,
                          force_threshold=relax.force_threshold if adaptive else None)
 
 
-def _resumed(checkpoint, fp: str, relax: RelaxationSettings, fresh: bool, say):
+def _resumed(checkpoint, fp: Fingerprint, relax: RelaxationSettings, fresh: bool, say):
     """(history, optimiser state, warm start, messages) of a checkpoint, or a fresh start."""
     loaded = None if fresh else _load_steps(checkpoint, fp)
     if loaded is None:
@@ -558,7 +579,7 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
             messages.append(problem)
             break
         if writer:
-            _save_step(checkpoint, fp, history, state, _density_of(previous), best[1].volume)
+            _save_step(checkpoint, fp, history, state, warm_start_of(previous))
         if k >= relax.max_steps:
             messages.append(f"the thresholds were not reached in {relax.max_steps} moves; "
                             "raise relaxation.max_steps (the run continues from its checkpoint)")

@@ -18,9 +18,9 @@ import numpy as np
 from ..crystal import Crystal
 from ..settings import GroundStateSettings
 from ..units import HA_PER_BOHR3_GPA
-from .equation_of_state import transfer_density
+from ..warm_start import WarmStart, starting_point, wavefunction_start_of
 
-__all__ = ["Evaluation", "Evaluator", "scf_evaluator"]
+__all__ = ["Evaluation", "Evaluator", "scf_evaluator", "warm_start_of"]
 
 
 @dataclass(frozen=True)
@@ -55,32 +55,33 @@ class Evaluation:
 
 
 #: ``evaluator(crystal, previous) -> Evaluation``; ``previous`` is the last
-#: evaluation (None at the start or after a resume) or, after a resume, a
-#: ``(density, volume)`` pair of the last step.
+#: evaluation, None at the start, or after a resume the last step's saved density
+#: as a :class:`pwsolid.warm_start.WarmStart` (without orbitals).
 Evaluator = Callable[[Crystal, Any], Evaluation]
+
+
+def warm_start_of(previous) -> WarmStart | None:
+    """What a finished step offers the next one (:class:`pwsolid.warm_start.WarmStart`):
+    its density (the (2, ...) spin densities of a spin-polarised run, so the moment is
+    kept) and orbitals. ``previous`` is an :class:`Evaluation`, a WarmStart (a resumed
+    run's saved density) or None; None for model evaluations without a ground state."""
+    if previous is None or isinstance(previous, WarmStart):
+        return previous
+    gs = getattr(previous, "ground_state", None)
+    if gs is None:
+        return None
+    density = gs.density if gs.spin_densities is None else gs.spin_densities
+    return WarmStart(np.asarray(density, float), float(gs.crystal.volume),
+                     wavefunction_start_of(gs))
 
 
 def _warm_start(previous, crystal: Crystal, setup):
     """(density, orbitals) to start this cell's SCF from the previous step's; (None, None)
-    without one. The density keeps its fractional-coordinate values (times V_old / V_new)."""
-    from ..scf import WavefunctionStart
-
-    if previous is None:
-        return None, None
-    if isinstance(previous, tuple):            # a resumed run: the saved density only
-        density, volume = previous
-        gs_waves = None
-    else:
-        gs = previous.ground_state
-        density = gs.density if gs.spin_densities is None else gs.spin_densities
-        volume, gs_waves = gs.crystal.volume, WavefunctionStart.of(gs)
-    density = np.asarray(density, float)
-    if density.ndim == 4:
-        moved = np.stack([transfer_density(d, volume, setup.grid_shape, crystal.volume)
-                          for d in density])
-    else:
-        moved = transfer_density(density, volume, setup.grid_shape, crystal.volume)
-    return moved, gs_waves
+    without one. The density keeps its fractional-coordinate values (times V_old / V_new),
+    carried by :func:`pwsolid.warm_start.starting_point` from one neighbour."""
+    density, waves, _ = starting_point(warm_start_of(previous), setup.grid_shape,
+                                       crystal.volume)
+    return density, waves
 
 
 def _distance(a: Crystal, b: Crystal) -> float:
@@ -222,13 +223,3 @@ def scf_evaluator(settings: GroundStateSettings, *, symmetrize: bool = True,
                           gs.iterations, gs.converged, tuple(messages), loose)
 
     return evaluate
-
-
-def _density_of(ev):
-    """The density to keep in a checkpoint (total or (2, ...) spin densities), or None."""
-    if isinstance(ev, tuple):
-        return ev[0]
-    gs = getattr(ev, "ground_state", None)
-    if gs is None:
-        return None
-    return gs.density if gs.spin_densities is None else gs.spin_densities

@@ -204,9 +204,22 @@ def test_a_checkpoint_of_another_relaxation_is_refused(tmp_path):
     relax = RelaxationSettings(moves="both", max_steps=1, keep_symmetry=False)
     start = face_centred_cubic(8.3, "Al").supercell((1, 1, 2))
     relax_structure(_displaced(start, 0.1, 7), relaxation=relax, evaluator=model, checkpoint=path)
-    with pytest.raises(InputError, match="another crystal"):
+    before = path.read_bytes()
+    with pytest.raises(InputError, match="fractional_positions differs: file"):
         relax_structure(_displaced(start, 0.1, 8), relaxation=relax, evaluator=model,
                         checkpoint=path)
+    # another relaxation setting of the same crystal: refused naming that setting
+    with pytest.raises(InputError, match="relaxation.target_pressure_GPa differs: file 0"):
+        relax_structure(_displaced(start, 0.1, 7), evaluator=model, checkpoint=path,
+                        relaxation=RelaxationSettings(moves="both", max_steps=1,
+                                                      keep_symmetry=False,
+                                                      target_pressure=1e-4))
+    assert path.read_bytes() == before                      # nothing overwritten
+    # more moves allowed is the same relaxation: it resumes
+    more = RelaxationSettings(moves="both", max_steps=2, keep_symmetry=False)
+    res = relax_structure(_displaced(start, 0.1, 7), relaxation=more, evaluator=model,
+                          checkpoint=path)
+    assert any("resumed" in m for m in res.messages) and res.n_moves == 2
 
 
 def test_a_collapsing_cell_stops_with_one_message():

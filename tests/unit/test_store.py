@@ -313,6 +313,62 @@ def test_records_of_the_coming_kinds_are_checked_the_same_way(kind, how, tmp_pat
         store.load_record(path, kind, fp)
 
 
+def _pushed_apart(crystal, previous=None):
+    """A stand-in evaluation (no SCF): opposite forces of 0.1 Ha/bohr on the two atoms,
+    never below a threshold, so that a relaxation leaves its checkpoint behind."""
+    from pwsolid.workflows.relaxation import Evaluation
+
+    return Evaluation(-7.9, np.array([[0.1, 0.0, 0.0], [-0.1, 0.0, 0.0]]), np.zeros((3, 3)))
+
+
+def _relaxation_with(path, crystal, settings, relax=None):
+    from pwsolid.workflows.relaxation import RelaxationSettings, relax_structure
+
+    relax = relax or RelaxationSettings(max_steps=1, keep_symmetry=False)
+    return relax_structure(crystal, settings, relax, evaluator=_pushed_apart, checkpoint=path)
+
+
+@pytest.mark.parametrize("how", DAMAGE)
+def test_damaged_or_foreign_relaxation_checkpoints_are_refused_and_kept(how, tmp_path):
+    # written and read by the relaxation workflow itself (a relaxation-step record)
+    path = tmp_path / "relax.npz"
+    _relaxation_with(path, SI, BASE)
+    assert store.load_record(path, "relaxation-step", None).metadata["history"]
+    _damage(path, how, tmp_path)
+    before = path.read_bytes()
+    with pytest.raises(InputError) as err:
+        _relaxation_with(path, SI, BASE)
+    assert str(path) in str(err.value) and WORDS[how] in str(err.value)
+    assert "pickle" not in str(err.value)
+    assert path.read_bytes() == before
+
+
+@pytest.mark.parametrize("field", ["functional", "cutoff_Ha", "fractional_positions",
+                                   "relaxation.moves", "relaxation.force_threshold_Ha_per_bohr"])
+def test_a_relaxation_checkpoint_of_another_calculation_is_refused_by_name(field, tmp_path):
+    from pwsolid.workflows.relaxation import RelaxationSettings
+
+    path = tmp_path / "relax.npz"
+    _relaxation_with(path, SI, BASE)
+    before = path.read_bytes()
+    crystal, settings = SI, BASE
+    relax = RelaxationSettings(max_steps=1, keep_symmetry=False)
+    if field == "functional":
+        settings = BASE.replace(functional="lda-pw92")
+    elif field == "cutoff_Ha":
+        settings = BASE.replace(cutoff=6.0)
+    elif field == "fractional_positions":
+        crystal = _shifted_atoms()
+    elif field == "relaxation.moves":
+        relax = RelaxationSettings(moves="both", max_steps=1, keep_symmetry=False)
+    else:
+        relax = RelaxationSettings(max_steps=1, keep_symmetry=False, force_threshold=1e-3)
+    with pytest.raises(InputError) as err:
+        _relaxation_with(path, crystal, settings, relax)
+    assert f"{field} differs: file " in str(err.value) and str(path) in str(err.value)
+    assert path.read_bytes() == before
+
+
 def test_a_trajectory_log_survives_being_cut_and_refuses_edits(tmp_path):
     fp = store.fingerprint(SI, BASE, {"Si": load_pseudopotential(SI_FILE)})
     path = tmp_path / "trajectory.json"
