@@ -8,8 +8,12 @@ directory (default: where the input's result file would go):
 * ``<stem>.relaxation.json``: the trajectory document (schema ``pwsolid.relaxation/1``);
 * ``<stem>.relaxation.png`` and ``.svg``: energy, largest force and stress per step;
 * ``<stem>.relaxed.toml``: the final structure as an input file that runs as it is;
-* ``<stem>.relaxation-checkpoint.npz`` while running: re-running the same command
-  after an interruption continues from the last finished step (``--fresh`` starts over).
+* ``<stem>.relaxed.cif``: the final structure as a CIF file, when the optional ASE
+  library is installed (otherwise a one-line note says it was skipped);
+* ``<stem>.relaxation-checkpoint.npz`` while running (a ``relaxation-step`` record
+  of :mod:`pwsolid.store`): re-running the same command after an interruption
+  continues from the last finished step (``--fresh`` starts over); a checkpoint of
+  another crystal, other settings or another relaxation is refused naming what differs.
 
 Exit codes: 0 converged; 4 when the thresholds were not reached in the allowed
 steps or the cell collapsed (the documents are still written, with
@@ -18,6 +22,7 @@ steps or the cell collapsed (the documents are still written, with
 
 from __future__ import annotations
 
+import io
 import json
 import sys
 from pathlib import Path
@@ -25,7 +30,7 @@ from pathlib import Path
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA
 
-__all__ = ["register", "run", "relaxed_input_text"]
+__all__ = ["register", "run", "relaxed_input_text", "write_cif"]
 
 _SETTINGS_SECTIONS = ("basis", "brillouin_zone", "exchange_correlation", "occupations", "spin",
                       "self_consistency")
@@ -38,8 +43,9 @@ def register(subparsers) -> None:
                     "force and the stress (at a target pressure) are below the thresholds of "
                     "the input's [relaxation] table, keeping the space group. Re-running the "
                     "same command resumes an interrupted relaxation.",
-        epilog="Writes <stem>.relaxation.json, <stem>.relaxation.png/.svg and "
-               "<stem>.relaxed.toml. Exit code 4 when the thresholds were not reached.")
+        epilog="Writes <stem>.relaxation.json, <stem>.relaxation.png/.svg, "
+               "<stem>.relaxed.toml and (with ASE installed) <stem>.relaxed.cif. Exit code 4 "
+               "when the thresholds were not reached.")
     p.add_argument("input", help="ground-state input file (TOML) with an optional [relaxation]")
     p.add_argument("--output-dir", metavar="DIR",
                    help="directory for the files written (default: where the input's result "
@@ -88,16 +94,24 @@ def run(args) -> int:
     doc["input"] = run_input.echo
     paths = {"trajectory": out_dir / f"{stem}.relaxation.json",
              "relaxed input": out_dir / f"{stem}.relaxed.toml"}
-    figures = []
+    figures, notes = [], []
     if writes:
         write_json(paths["trajectory"], doc)
         text = relaxed_input_text(run_input, result.crystal, result.converged, args.input)
         atomic_write_bytes(paths["relaxed input"], text.encode())
+        cif = out_dir / f"{stem}.relaxed.cif"
+        skipped = write_cif(cif, result.crystal)
+        if skipped:
+            notes.append(skipped)
+        else:
+            paths["relaxed structure (CIF)"] = cif
         figures = RelaxationPlot.from_result(result, title=run_input.title).save(
             out_dir / f"{stem}.relaxation")
     print("\n".join(result.summary_lines()))
     for name, path in paths.items():
-        print(f"{name.capitalize()} written to {path}")
+        print(f"{name[0].upper() + name[1:]} written to {path}")
+    for note in notes:
+        print(note)
     if figures:
         print("Figure written to " + ", ".join(str(f) for f in figures))
     if not result.converged:
@@ -154,3 +168,32 @@ def relaxed_input_text(run_input, crystal, converged: bool, source="") -> str:
     if "relaxation" in echo:
         lines += _table("relaxation", echo["relaxation"])
     return "\n".join(lines)
+
+
+# -- the relaxed structure as a CIF file (optional: needs ASE) ---------------------------
+
+def write_cif(path, crystal) -> str | None:
+    """Write ``crystal`` as a CIF file (atomically) through ASE's writer, if installed.
+
+    The cell goes in angstrom, the positions fractional, in space group P 1 (the
+    relaxed structure as it is; no symmetry is searched for). ASE is an optional
+    dependency, imported here only.
+
+    Returns
+    -------
+    str or None
+        None when written; otherwise a one-line note saying why it was skipped.
+    """
+    try:
+        import ase
+        import ase.io
+    except ImportError:
+        return "Note: no CIF file written (the optional ASE library is not installed)"
+    from ..safe_files import atomic_write_bytes
+
+    atoms = ase.Atoms(list(crystal.species), scaled_positions=crystal.positions,
+                      cell=crystal.lattice * BOHR_ANGSTROM, pbc=True)
+    buf = io.BytesIO()
+    ase.io.write(buf, atoms, format="cif")
+    atomic_write_bytes(path, buf.getvalue())
+    return None

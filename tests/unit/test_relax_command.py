@@ -80,11 +80,65 @@ def test_unconverged_relaxation_writes_documents_and_exits_with_code_four(tmp_pa
     assert "not converged" in (tmp_path / "tiny-si.relaxed.toml").read_text().splitlines()[0] \
         .lower()
     assert "max_steps" in capsys.readouterr().err
+    # the CIF beside the relaxed input holds the final (lowest-enthalpy) structure
+    final = doc["final_structure"]
+    _assert_cif_holds(tmp_path / "tiny-si.relaxed.cif",
+                      np.array(final["lattice_vectors_angstrom"]), final["species"],
+                      np.array(final["fractional_positions"]))
     # the checkpoint stays; a re-run at the same limit says what to do
     assert (tmp_path / "tiny-si.relaxation-checkpoint.npz").exists()
     assert main(["relax-structure", str(path), "--output-dir", str(tmp_path)]) == \
         EXIT_INVALID_INPUT
     assert "raise relaxation.max_steps" in capsys.readouterr().err
+
+
+def _cell_parameters(lattice):
+    """Lengths (rows' norms) and angles alpha, beta, gamma (degrees) of a lattice."""
+    a, b, c = lattice
+    angle = lambda u, v: np.degrees(np.arccos(u @ v / np.linalg.norm(u) / np.linalg.norm(v)))
+    return np.r_[np.linalg.norm(lattice, axis=1), angle(b, c), angle(a, c), angle(a, b)]
+
+
+def _assert_cif_holds(path, lattice_angstrom, species, fractional):
+    """The CIF, read back by ASE's reader, holds this cell and these atoms. A CIF keeps
+    cell lengths and angles, not the orientation: compared through them (CIF standard,
+    Hall, Allen and Brown, Acta Cryst. A47, 655 (1991))."""
+    ase_io = pytest.importorskip("ase.io")
+    back = ase_io.read(path, format="cif")
+    # 1e-8: the writer prints full float precision; angles through arccos lose a little
+    np.testing.assert_allclose(back.cell.cellpar(), _cell_parameters(lattice_angstrom),
+                               atol=1e-8)
+    assert back.get_chemical_symbols() == list(species)
+    d = back.get_scaled_positions(wrap=False) - np.asarray(fractional)
+    np.testing.assert_allclose(d - np.rint(d), 0.0, atol=1e-8)
+
+
+def test_the_relaxed_structure_is_written_as_a_cif_that_reads_back(tmp_path):
+    from pwsolid.commands.relax_structure import write_cif
+    from pwsolid.crystal import Crystal, hexagonal_close_packed
+    from pwsolid.units import BOHR_ANGSTROM
+
+    pytest.importorskip("ase.io")
+    hcp = hexagonal_close_packed(6.06, "Mg", 1.62)
+    # a low-symmetry cell: sheared, atoms moved off their sites
+    moved = Crystal(hcp.lattice @ np.array([[1.0, 0.02, 0.0], [0.0, 0.99, 0.01], [0.0, 0.0, 1.03]]),
+                    hcp.species, hcp.positions + [[0.011, -0.02, 0.003], [0.0, 0.017, -0.005]])
+    path = tmp_path / "moved.relaxed.cif"
+    assert write_cif(path, moved) is None
+    _assert_cif_holds(path, moved.lattice * BOHR_ANGSTROM, moved.species, moved.positions)
+
+
+def test_without_ase_the_cif_is_skipped_with_a_note(tmp_path, monkeypatch):
+    import sys
+
+    from pwsolid.commands.relax_structure import write_cif
+    from pwsolid.crystal import diamond
+
+    monkeypatch.setitem(sys.modules, "ase", None)       # makes 'import ase' fail
+    monkeypatch.setitem(sys.modules, "ase.io", None)
+    note = write_cif(tmp_path / "si.cif", diamond(10.26, "Si"))
+    assert "ASE" in note and "\n" not in note
+    assert not (tmp_path / "si.cif").exists()
 
 
 def test_threshold_without_unit_exits_with_code_three(tmp_path, capsys):
