@@ -118,7 +118,8 @@ for _kind in (
                           "--density-file"),
         RecordKind("volume-points", "restart file of a volume scan", 2, "log", "points",
                    remedy="delete it, or give another restart file (--restart-file)"),
-        RecordKind("relaxation-step", "relaxation checkpoint", 1, "archive"),
+        RecordKind("relaxation-step", "relaxation checkpoint", 1, "archive",
+                   remedy="delete it or pass --fresh to start over"),
         RecordKind("relaxation-trajectory", "relaxation trajectory", 1, "log", "steps"),
         RecordKind("phonon-displacements", "phonon displacement record", 1, "archive")):
     register_kind(_kind)

@@ -28,6 +28,7 @@ import sys
 from pathlib import Path
 
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK
+from .common import accept_mismatch_option
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA
 
 __all__ = ["register", "run", "relaxed_input_text", "write_cif"]
@@ -54,6 +55,7 @@ def register(subparsers) -> None:
                    help="where the per-step checkpoint goes (default "
                         "<stem>.relaxation-checkpoint.npz in the output directory)")
     p.add_argument("--fresh", action="store_true", help="ignore an existing checkpoint")
+    accept_mismatch_option(p)
     p.add_argument("--show-scf", action="store_true", help="also print every SCF iteration")
     p.add_argument("--quiet", action="store_true", help="print only the summary")
     p.set_defaults(handler=run)
@@ -83,7 +85,8 @@ def run(args) -> int:
         # every MPI process reads the checkpoint (they must all resume alike); the
         # workflow lets only process 0 write it
         result = relax_structure(c, run_input.settings, relax, checkpoint=checkpoint, log=say,
-                                 scf_log=say if args.show_scf else None, fresh=args.fresh)
+                                 scf_log=say if args.show_scf else None, fresh=args.fresh,
+                                 accept_mismatch=args.accept_mismatch)
     except KeyboardInterrupt:
         hint = (f"the finished steps are saved in {checkpoint}; run the same command to "
                 "continue" if checkpoint.exists() else "no step was finished")

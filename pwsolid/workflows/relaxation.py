@@ -24,8 +24,13 @@ every proposed step is projected onto the symmetric displacements and strains
 (the group average), so round-off cannot break the symmetry over many steps.
 
 Every step starts its SCF from the previous step's density (carried to the new
-cell at fixed fractional coordinates) and orbitals; a checkpoint after every step
-(optimiser state, history, latest density) lets a killed run resume.
+cell at fixed fractional coordinates by :mod:`pwsolid.warm_start`) and orbitals; a
+checkpoint after every step (optimiser state, history, latest density: a
+``relaxation-step`` record of :mod:`pwsolid.store`) lets a killed run resume. Its
+fingerprint is the store's fingerprint of the starting crystal and settings plus
+one ``relaxation.<key>`` field per relaxation setting (``max_steps`` excepted: a
+resumed run may allow more moves), so a checkpoint of another relaxation is
+refused naming what differs.
 
 Inside: Ha, bohr, Ha/bohr, Ha/bohr^3; ``as_document()`` adds eV, angstrom and GPa.
 
@@ -261,24 +266,26 @@ def _relaxation_fingerprint(crystal: Crystal, settings: GroundStateSettings,
 
 
 def _save_step(path, fp: Fingerprint, history: list, state: QuasiNewtonState,
-               warm: WarmStart | None) -> None:
+               warm: WarmStart | None, accepted=()) -> None:
     """Write the finished steps, the optimiser state and the density the next step
-    starts from atomically (a ``relaxation-step`` record)."""
+    starts from atomically (a ``relaxation-step`` record; ``accepted``: differences
+    from the calculation the steps began as, accepted on resuming, kept in the file)."""
     arrays = {f"optimizer_{k}": v for k, v in state.as_arrays().items()}
     meta = {"history": history}
     if warm is not None:
         arrays["density"] = np.asarray(warm.density, float)
         meta["density_volume_bohr3"] = warm.volume
-    save_record(path, "relaxation-step", fp, arrays, meta)
+    save_record(path, "relaxation-step", fp, arrays, meta, accepted_mismatches=accepted)
 
 
-def _load_steps(path, fp: Fingerprint):
-    """(history, optimiser state, warm start or None) from a checkpoint, or None when
-    there is none; InputError (naming what differs) for one of another relaxation,
-    and for a damaged, foreign or future one."""
+def _load_steps(path, fp: Fingerprint, accept_mismatch: bool = False):
+    """(history, optimiser state, warm start or None, accepted differences) from a
+    checkpoint, or None when there is none; InputError (naming what differs) for one
+    of another relaxation unless ``accept_mismatch``, and for a damaged, foreign or
+    future one."""
     if path is None or not Path(path).exists():
         return None
-    record = load_record(path, "relaxation-step", fp)
+    record = load_record(path, "relaxation-step", fp, accept_mismatch=accept_mismatch)
     meta = record.metadata
     try:
         state = QuasiNewtonState.from_arrays({k[len("optimizer_"):]: v
@@ -291,7 +298,7 @@ def _load_steps(path, fp: Fingerprint):
     except (KeyError, TypeError, ValueError):
         raise InputError("the relaxation checkpoint lacks the optimiser state or the steps; "
                          "delete it or pass --fresh to start over", source=str(path)) from None
-    return history, state, start
+    return history, state, start, record.mismatches
 
 
 # --- the result ----------------------------------------------------------------------
@@ -472,20 +479,30 @@ def _default_evaluator(settings: GroundStateSettings, relax: RelaxationSettings,
                          force_threshold=relax.force_threshold if adaptive else None)
 
 
-def _resumed(checkpoint, fp: Fingerprint, relax: RelaxationSettings, fresh: bool, say):
-    """(history, optimiser state, warm start, messages) of a checkpoint, or a fresh start."""
-    loaded = None if fresh else _load_steps(checkpoint, fp)
+def _resumed(checkpoint, fp: Fingerprint, relax: RelaxationSettings, coords: _Coordinates,
+             fresh: bool, accept_mismatch: bool, say):
+    """(history, optimiser state, warm start, messages, accepted differences) of a
+    checkpoint, or a fresh start."""
+    loaded = None if fresh else _load_steps(checkpoint, fp, accept_mismatch)
     if loaded is None:
-        return [], None, None, []
-    history, state, previous = loaded
+        return [], None, None, [], ()
+    history, state, previous, accepted = loaded
+    if len(state.x) != len(coords.start()):
+        raise InputError(f"the relaxation checkpoint moves {len(state.x)} coordinates, this "
+                         f"relaxation {len(coords.start())} (other atoms or other moves): it "
+                         "cannot be continued; delete it or pass --fresh", source=str(checkpoint))
     if len(history) - 1 >= relax.max_steps:
         raise InputError(f"the checkpoint already holds {len(history) - 1} moves, the limit; "
                          "raise relaxation.max_steps to continue or pass --fresh",
                          key="relaxation.max_steps", value=relax.max_steps,
                          source=str(checkpoint))
-    note = f"resumed from {checkpoint} after step {len(history) - 1}"
-    say(note)
-    return history, state, previous, [note]
+    notes = [f"resumed from {checkpoint} after step {len(history) - 1}"]
+    if accepted:
+        notes.append("the checkpoint was made for another calculation, accepted on request: "
+                     + "; ".join(accepted))
+    for note in notes:
+        say(note)
+    return history, state, previous, notes, accepted
 
 
 def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = None,
@@ -493,7 +510,7 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
                     evaluator: Evaluator | None = None, checkpoint=None,
                     log: Callable[[str], None] | None = None,
                     scf_log: Callable[[str], None] | None = None,
-                    fresh: bool = False) -> RelaxationResult:
+                    fresh: bool = False, accept_mismatch: bool = False) -> RelaxationResult:
     """Relax the positions, the cell or both of a crystal (BFGS on the enthalpy).
 
     Parameters
@@ -514,6 +531,11 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
         process 0 writes it.
     fresh
         Ignore an existing checkpoint (it is overwritten by the first step).
+    accept_mismatch
+        Continue from a checkpoint of another calculation (other settings, another
+        starting crystal or relaxation settings) instead of refusing it, provided
+        the same coordinates move; the differences go into ``messages`` and stay
+        recorded in the checkpoint.
     log, scf_log
         Receive the progress lines of the steps and of each SCF.
 
@@ -533,7 +555,8 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
     coords = _Coordinates.of(crystal, relax)
     evaluate = evaluator or _default_evaluator(settings, relax, scf_log)
     fp = _relaxation_fingerprint(crystal, settings, relax)
-    history, state, previous, messages = _resumed(checkpoint, fp, relax, fresh, say)
+    history, state, previous, messages, accepted = _resumed(checkpoint, fp, relax, coords,
+                                                            fresh, accept_mismatch, say)
     writer = checkpoint is not None and world().rank == 0
     z = coords.start() if state is None else state.proposal
     free = _free_coordinates(coords, len(z))
@@ -579,7 +602,7 @@ def relax_structure(crystal: Crystal, settings: GroundStateSettings | None = Non
             messages.append(problem)
             break
         if writer:
-            _save_step(checkpoint, fp, history, state, warm_start_of(previous))
+            _save_step(checkpoint, fp, history, state, warm_start_of(previous), accepted)
         if k >= relax.max_steps:
             messages.append(f"the thresholds were not reached in {relax.max_steps} moves; "
                             "raise relaxation.max_steps (the run continues from its checkpoint)")

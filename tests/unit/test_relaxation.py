@@ -13,10 +13,13 @@ import pytest
 
 from pwsolid.crystal import Crystal, diamond, face_centred_cubic, hexagonal_close_packed
 from pwsolid.errors import InputError
+from pwsolid.settings import GroundStateSettings
+from pwsolid.store import load_record
 from pwsolid.symmetry import find_symmetry
 from pwsolid.units import HA_PER_BOHR3_GPA
 from pwsolid.workflows.relaxation import (Evaluation, RelaxationSettings, _Coordinates,
-                                          relax_lattice, relax_structure)
+                                          _relaxation_fingerprint, relax_lattice,
+                                          relax_structure)
 
 _A, _RA, _C, _RC = 10.0, 2.0, 0.1, 3.5     # repulsive and attractive Gaussians (Ha, bohr)
 _REACH = _RC * 6.2                           # exp(-6.2^2) < 1e-16: images beyond add nothing
@@ -199,6 +202,11 @@ def test_a_killed_run_resumes_where_it_stopped(tmp_path):
     assert not path.exists()          # removed once converged
 
 
+def _copy(path, to):
+    to.write_bytes(path.read_bytes())
+    return to
+
+
 def test_a_checkpoint_of_another_relaxation_is_refused(tmp_path):
     path = tmp_path / "relax.npz"
     relax = RelaxationSettings(moves="both", max_steps=1, keep_symmetry=False)
@@ -215,6 +223,23 @@ def test_a_checkpoint_of_another_relaxation_is_refused(tmp_path):
                                                       keep_symmetry=False,
                                                       target_pressure=1e-4))
     assert path.read_bytes() == before                      # nothing overwritten
+    # a difference accepted on purpose: the run continues and says so, in its messages
+    # and in the checkpoint it goes on writing
+    pressed = RelaxationSettings(moves="both", max_steps=2, keep_symmetry=False,
+                                 target_pressure=1e-4)
+    res = relax_structure(_displaced(start, 0.1, 7), relaxation=pressed, evaluator=model,
+                          checkpoint=_copy(path, tmp_path / "copy.npz"),
+                          accept_mismatch=True)
+    assert any("relaxation.target_pressure_GPa differs" in m for m in res.messages)
+    kept = load_record(tmp_path / "copy.npz", "relaxation-step", _relaxation_fingerprint(
+        _displaced(start, 0.1, 7), GroundStateSettings(), pressed))
+    assert any("target_pressure" in m for m in kept.mismatches)
+    # ... but not when other coordinates move: the optimiser state cannot carry over
+    with pytest.raises(InputError, match="cannot be continued"):
+        relax_structure(_displaced(start, 0.1, 7), evaluator=model, checkpoint=path,
+                        relaxation=RelaxationSettings(max_steps=2, keep_symmetry=False),
+                        accept_mismatch=True)
+    assert path.read_bytes() == before
     # more moves allowed is the same relaxation: it resumes
     more = RelaxationSettings(moves="both", max_steps=2, keep_symmetry=False)
     res = relax_structure(_displaced(start, 0.1, 7), relaxation=more, evaluator=model,
@@ -245,7 +270,6 @@ def test_bad_relaxation_settings_name_their_key(kwargs, key):
 
 
 def test_scf_tolerances_follow_the_forces():
-    from pwsolid.settings import GroundStateSettings
     from pwsolid.workflows.relaxation_evaluation import _step_settings
 
     s = GroundStateSettings(energy_tolerance=1e-8, density_tolerance=1e-6)
