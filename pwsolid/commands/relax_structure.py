@@ -28,7 +28,8 @@ import sys
 from pathlib import Path
 
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK
-from .common import accept_mismatch_option
+from .common import (accept_mismatch_option, check_output_dir, check_output_file,
+                     default_output_dir)
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA
 
 __all__ = ["register", "run", "relaxed_input_text", "write_cif"]
@@ -71,9 +72,11 @@ def run(args) -> int:
     run_input = load_input(args.input)
     relax = run_input.relaxation
     stem = Path(args.input).stem
-    out_dir = Path(args.output_dir) if args.output_dir else Path(run_input.result_file).parent
-    checkpoint = (Path(args.checkpoint_file) if args.checkpoint_file
-                  else out_dir / f"{stem}.relaxation-checkpoint.npz")
+    out_dir = check_output_dir(Path(args.output_dir) if args.output_dir
+                               else default_output_dir(run_input))
+    checkpoint = check_output_file(Path(args.checkpoint_file) if args.checkpoint_file
+                                   else out_dir / f"{stem}.relaxation-checkpoint.npz",
+                                   "--checkpoint-file")
     writes = getattr(args, "writes_files", True)
     say = (lambda line: None) if args.quiet else (lambda line: print(line, flush=True))
     c = run_input.crystal

@@ -141,6 +141,24 @@ def test_without_ase_the_cif_is_skipped_with_a_note(tmp_path, monkeypatch):
     assert not (tmp_path / "si.cif").exists()
 
 
+@pytest.mark.parametrize("option, where", [("--output-dir", "a file"),
+                                           ("--checkpoint-file", "a directory"),
+                                           ("--checkpoint-file", "under a file")])
+def test_unwritable_outputs_are_refused_before_any_work(tmp_path, capsys, monkeypatch, option,
+                                                        where):
+    import pwsolid.workflows.relaxation as relaxation
+
+    monkeypatch.setattr(relaxation, "relax_structure", None)     # no work may start
+    path = _write(tmp_path, 'moves = "cell"')
+    blocker = tmp_path / "blocker"
+    blocker.write_text("")
+    target = {"a file": blocker, "a directory": tmp_path,
+              "under a file": blocker / "c.npz"}[where]
+    assert main(["relax-structure", str(path), option, str(target)]) == EXIT_INVALID_INPUT
+    err = capsys.readouterr().err
+    assert option in err and "Traceback" not in err
+
+
 def test_threshold_without_unit_exits_with_code_three(tmp_path, capsys):
     path = _write(tmp_path, "force_threshold = 0.0001")
     assert main(["relax-structure", str(path)]) == EXIT_INVALID_INPUT
