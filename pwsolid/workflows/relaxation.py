@@ -28,9 +28,10 @@ cell at fixed fractional coordinates by :mod:`pwsolid.warm_start`) and orbitals;
 checkpoint after every step (optimiser state, history, latest density: a
 ``relaxation-step`` record of :mod:`pwsolid.store`) lets a killed run resume. Its
 fingerprint is the store's fingerprint of the starting crystal and settings plus
-one ``relaxation.<key>`` field per relaxation setting (``max_steps`` excepted: a
-resumed run may allow more moves), so a checkpoint of another relaxation is
-refused naming what differs.
+one ``relaxation.<key>`` field per relaxation setting (except ``max_steps``,
+``warm_start`` and ``adaptive_scf_tolerance``: a resumed run may allow more moves
+or start its SCFs otherwise), so a checkpoint of another relaxation is refused
+naming what differs.
 
 Inside: Ha, bohr, Ha/bohr, Ha/bohr^3; ``as_document()`` adds eV, angstrom and GPa.
 
@@ -247,8 +248,10 @@ class _Coordinates:
 # --- persistence: relaxation-step records of the one store -----------------------
 
 #: Relaxation settings that do not enter a checkpoint's fingerprint: a resumed run may
-#: allow more moves.
-_PATH_ONLY_RELAXATION = ("max_steps",)
+#: allow more moves, and how each SCF starts and how tightly early steps converge change
+#: the way, not the structure reached (the last step is always at the settings' own
+#: tolerances).
+_PATH_ONLY_RELAXATION = ("max_steps", "warm_start", "adaptive_scf_tolerance")
 
 
 def _relaxation_fingerprint(crystal: Crystal, settings: GroundStateSettings,
