@@ -102,6 +102,7 @@ def _convert(atoms, source: str) -> tuple[Crystal, tuple[str, ...]]:
         raise InputError("the structure has no three-dimensional cell (its cell vectors are "
                          "missing or linearly dependent)", key="crystal.structure_file",
                          source=source)
+    _refuse_partial_occupancy(atoms, source)
     positions = np.array(atoms.get_scaled_positions(wrap=True), float)
     notes = []
     if np.linalg.det(lattice) < 0:
@@ -110,6 +111,19 @@ def _convert(atoms, source: str) -> tuple[Crystal, tuple[str, ...]]:
         positions = positions[:, [1, 0, 2]]
         notes.append("the file's cell vectors were left-handed; a and b were swapped")
     return Crystal(lattice, tuple(atoms.get_chemical_symbols()), positions), tuple(notes)
+
+
+def _refuse_partial_occupancy(atoms, source: str) -> None:
+    """A site shared by species or partly empty (a CIF with occupancies below 1) has no
+    periodic one-cell description: refuse it rather than pick one species."""
+    for site, shares in (atoms.info.get("occupancy") or {}).items():
+        total = sum(float(x) for x in shares.values())
+        if len(shares) > 1 or abs(total - 1.0) > 1e-6:
+            described = ", ".join(f"{el} {float(x):g}" for el, x in shares.items())
+            raise InputError(f"site {site} is disordered or partly occupied ({described}): "
+                             "pwsolid needs an ordered crystal with every site fully occupied; "
+                             "build an ordered supercell (e.g. a special quasirandom structure) "
+                             "instead", key="crystal.structure_file", source=source)
 
 
 def atoms_from_crystal(crystal: Crystal):
@@ -121,7 +135,7 @@ def atoms_from_crystal(crystal: Crystal):
 
 def read_structure(path, *, symmetry_tolerance: float = DEFAULT_SYMMETRY_TOLERANCE,
                    index: int = -1, file_format: str | None = None,
-                   primitive: bool = False) -> StructureImport:
+                   primitive: bool = False, symmetrize: bool = True) -> StructureImport:
     """Read a crystal from any structure file ASE can read (CIF first of all).
 
     Parameters
@@ -136,6 +150,11 @@ def read_structure(path, *, symmetry_tolerance: float = DEFAULT_SYMMETRY_TOLERAN
         Reduce the cell to a primitive one (spglib, same tolerance, orientation and
         positions kept where possible): a CIF usually gives the conventional cell,
         which for diamond or fcc crystals holds four times the atoms.
+    symmetrize
+        Make the cell and positions exactly symmetric under the space group found at
+        ``symmetry_tolerance`` (ASE's ``refine_symmetry``; orientation kept). A file's
+        rounded coordinates (0.333333 for 1/3) otherwise lose symmetry at the much
+        tighter tolerance the calculation uses. The largest atom move is reported.
 
     Raises
     ------
@@ -155,13 +174,37 @@ def read_structure(path, *, symmetry_tolerance: float = DEFAULT_SYMMETRY_TOLERAN
         raise InputError(f"ASE could not read this structure file ({type(exc).__name__}: "
                          f"{exc}); give a CIF or another format ASE reads",
                          key="crystal.structure_file", source=name) from None
+    if symmetrize:
+        atoms, moved = _refined(atoms, symmetry_tolerance, name)
     crystal, notes = _convert(atoms, name)
+    if symmetrize:
+        notes += (f"cell and positions made exactly symmetric (largest atom move "
+                  f"{moved:.2e} bohr)",)
     if primitive:
         crystal, notes = _primitive(crystal, symmetry_tolerance, name), notes + (
             "reduced to a primitive cell",)
     sym = find_symmetry(crystal, symmetry_tolerance)
     return StructureImport(crystal, sym.international_symbol, int(sym.space_group_number),
                            float(symmetry_tolerance), name, notes)
+
+
+def _refined(atoms, tolerance: float, source: str):
+    """(symmetrised copy of ``atoms``, largest position change in bohr)."""
+    from ase.spacegroup.symmetrize import refine_symmetry
+    _refuse_partial_occupancy(atoms, source)
+    if not np.asarray(atoms.get_pbc(), bool).all():
+        return atoms, 0.0                  # refused with its own message by _convert
+    refined = atoms.copy()
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", DeprecationWarning)
+            refine_symmetry(refined, symprec=tolerance * BOHR_ANGSTROM)
+    except Exception as exc:          # spglib's failure types differ between releases
+        raise InputError(f"the structure's symmetry could not be refined ({exc}); try another "
+                         "tolerance or symmetrize=False", key="crystal.symmetry_tolerance",
+                         value=tolerance, source=source) from None
+    delta = refined.positions - atoms.positions
+    return refined, float(np.linalg.norm(delta, axis=1).max()) / BOHR_ANGSTROM
 
 
 def _primitive(crystal: Crystal, tolerance: float, source: str) -> Crystal:

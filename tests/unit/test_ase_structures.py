@@ -9,7 +9,7 @@ from scipy import constants
 
 pytest.importorskip("ase")
 
-from pwsolid.crystal import diamond, hexagonal_close_packed, zincblende  # noqa: E402
+from pwsolid.crystal import diamond, hexagonal_close_packed, rocksalt, zincblende  # noqa: E402
 from pwsolid.errors import InputError  # noqa: E402
 from pwsolid.interop import MissingExtraError, require  # noqa: E402
 from pwsolid.interop.ase_structures import (atoms_from_crystal, crystal_from_atoms,  # noqa: E402
@@ -60,9 +60,28 @@ def test_gallium_arsenide_cif_gives_zincblende():
 def test_magnesium_cif_gives_hcp():
     r = read_structure(DATA / "magnesium-hcp.cif")
     assert r.space_group_number == 194 and r.crystal.n_atoms == 2
+    # the file's 0.333333 becomes exactly 1/3 on import (refined symmetry)
+    from pwsolid.symmetry import find_symmetry
+    assert find_symmetry(r.crystal, 1e-9).space_group_number == 194
     # hcp volume per cell: (sqrt(3)/2) a^2 c (geometry)
     assert r.crystal.volume * BOHR_ANGSTROM ** 3 == pytest.approx(
         np.sqrt(3) / 2 * 3.2094 ** 2 * 5.2108, rel=1e-9)
+
+
+def test_sodium_chloride_cif_gives_rock_salt():
+    # Fm-3m, Na 4a, Cl 4b (International Tables, space group 225): its primitive cell is
+    # the rock-salt prototype's, Na-Cl bond a/2
+    r = read_structure(DATA / "sodium-chloride-rocksalt.cif", primitive=True)
+    ref = rocksalt(5.640 / BOHR_ANGSTROM, ("Na", "Cl"))
+    assert r.space_group_number == 225
+    np.testing.assert_allclose(r.crystal.lattice @ r.crystal.lattice.T,
+                               ref.lattice @ ref.lattice.T, atol=1e-9)
+    assert _shortest_bond(r.crystal) * BOHR_ANGSTROM == pytest.approx(5.640 / 2, rel=1e-9)
+
+
+def test_disordered_sites_are_refused():
+    with pytest.raises(InputError, match="disordered or partly occupied"):
+        read_structure(DATA / "disordered-alloy.cif")
 
 
 def test_symmetry_tolerance_decides_what_counts_as_equal():
@@ -74,6 +93,10 @@ def test_symmetry_tolerance_decides_what_counts_as_equal():
     try:
         atoms.write(path)
         assert read_structure(path, symmetry_tolerance=1e-3).space_group_number < 227
+        # refined at the loose tolerance: exactly symmetric afterwards, even at a tight one
+        refined = read_structure(path, symmetry_tolerance=0.5).crystal
+        from pwsolid.symmetry import find_symmetry
+        assert find_symmetry(refined, 1e-8).space_group_number == 227
         assert read_structure(path, symmetry_tolerance=0.5).space_group_number == 227
     finally:
         path.unlink(missing_ok=True)

@@ -96,3 +96,27 @@ def test_compressed_cell_pushes_outward():
     stress = si.get_stress()
     assert np.all(stress[:3] < 0) and np.allclose(stress[3:], 0, atol=1e-6)
     assert si.calc.pressure_gpa() > 5.0
+
+
+@pytest.mark.parametrize("name, prototype", [
+    # Fd-3m Si on 8a, a = 5.431020511 angstrom (CODATA 2018); primitive cell
+    ("silicon-diamond.cif", lambda: __import__("pwsolid").diamond(5.431020511 / BOHR_ANGSTROM, "Si")),
+    # P6_3/mmc Mg on 2c, a = 3.2094, c = 5.2108 angstrom (from memory)
+    ("magnesium-hcp.cif", lambda: __import__("pwsolid").hexagonal_close_packed(
+        3.2094 / BOHR_ANGSTROM, "Mg", 5.2108 / 3.2094)),
+])
+def test_structure_file_gives_the_prototype_energy(name, prototype):
+    # the same crystal in another orientation or description has the same energy: the
+    # k-mesh and the plane-wave set are defined on the lattice vectors, so a rotated
+    # cell with the same metric is the same calculation (invariance; 1e-8 Ha)
+    from pathlib import Path
+    from pwsolid.interop.ase_structures import read_structure
+    path = Path(__file__).parents[1] / "data" / "structures" / name
+    imported = read_structure(path, primitive=True).crystal
+    # a mesh through Gamma keeps the hexagonal symmetry (a half-step shift does not)
+    settings = GroundStateSettings(cutoff=6.0, kpoint_mesh=(2, 2, 2), kpoint_shift=(0, 0, 0),
+                                   energy_tolerance=1e-11,
+                                   density_tolerance=1e-9, smearing="cold", smearing_width=0.01)
+    e_file = ground_state(imported, settings).free_energy
+    e_proto = ground_state(prototype(), settings).free_energy
+    assert e_file == pytest.approx(e_proto, abs=1e-8)
