@@ -17,6 +17,7 @@ from .fft import fast_fft_size
 __all__ = [
     "PlaneWaveSet",
     "make_basis",
+    "basis_from_miller",
     "fft_grid_for_cutoff",
     "grid_miller_indices",
     "grid_g_vectors",
@@ -100,7 +101,40 @@ def make_basis(lattice: np.ndarray, k_fractional, cutoff: float, grid_shape) -> 
     keep = kin <= cutoff * (1 + 1e-12)
     m, kpg, kin = m[keep], kpg[keep], kin[keep]
     order = np.lexsort((m[:, 2], m[:, 1], m[:, 0], np.round(kin, 10)))
-    m, kpg, kin = m[order], kpg[order], kin[order]
+    return _plane_wave_set(k, m[order], kpg[order], kin[order], grid_shape)
+
+
+def basis_from_miller(lattice: np.ndarray, k_fractional, miller, grid_shape) -> PlaneWaveSet:
+    """The plane waves of the given Miller indices at one k-point, whatever their energy.
+
+    Keeps a basis fixed under a deformation of the cell: the Miller set of a reference
+    cell's :func:`make_basis` describes the same Bloch functions in a strained copy
+    (fractional coordinates), so energies of strained cells differ by the physics and
+    not by plane waves entering or leaving the cutoff sphere (no Pulay stress).
+
+    Parameters
+    ----------
+    lattice : (3, 3) bohr
+    k_fractional : (3,)
+    miller : (n_pw, 3) int
+    grid_shape : 3 ints
+
+    Raises
+    ------
+    ValueError
+        If the grid cannot hold the plane waves.
+    """
+    lattice = np.asarray(lattice, float)
+    recip = 2 * np.pi * np.linalg.inv(lattice).T
+    k = np.asarray(k_fractional, float)
+    m = np.asarray(miller, int).reshape(-1, 3)
+    kpg = (m + k) @ recip
+    kin = 0.5 * np.einsum("ij,ij->i", kpg, kpg)
+    order = np.lexsort((m[:, 2], m[:, 1], m[:, 0], np.round(kin, 10)))
+    return _plane_wave_set(k, m[order], kpg[order], kin[order], grid_shape)
+
+
+def _plane_wave_set(k, m, kpg, kin, grid_shape) -> PlaneWaveSet:
     shape = tuple(int(n) for n in grid_shape)
     span = m.max(axis=0) - m.min(axis=0) + 1 if len(m) else np.zeros(3, int)
     if np.any(span > np.array(shape)):

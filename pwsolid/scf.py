@@ -18,8 +18,8 @@ from typing import Callable
 import numpy as np
 
 from . import xc as _xc
-from .basis import (PlaneWaveSet, density_sphere, fft_grid_for_cutoff, grid_g_vectors, make_basis,
-                    transfer_coefficients)
+from .basis import (PlaneWaveSet, basis_from_miller, density_sphere, fft_grid_for_cutoff,
+                    grid_g_vectors, make_basis, transfer_coefficients)
 from .crystal import Crystal
 from .eigensolver import davidson, dense_lowest_eigenpairs
 from .electrostatics import ewald_energy, hartree_energy, hartree_potential
@@ -133,11 +133,16 @@ class SystemSetup:
 
 
 def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
-            comm=None, external_potential=None) -> SystemSetup:
+            comm=None, external_potential=None, plane_waves=None) -> SystemSetup:
     """Build the fixed set-up of a ground-state calculation.
 
     ``comm`` (default: :func:`pwsolid.parallel.world`) spreads the k-points over MPI
     processes; every process holds the whole density and all eigenvalues.
+
+    ``plane_waves`` (one Miller-index array per irreducible k-point, e.g.
+    ``[b.miller for b in reference.bases]``) fixes the basis instead of the cutoff
+    sphere: a strained copy of a cell then keeps its plane waves (see
+    :func:`pwsolid.basis.basis_from_miller`); set ``basis.fft_grid`` alike.
 
     ``external_potential`` (Ha, on the FFT grid the settings give, or a callable of
     the grid shape returning it) is added to the ionic local potential, e.g. a weak
@@ -161,8 +166,16 @@ def prepare(crystal: Crystal, settings: GroundStateSettings | None = None, *,
         # a mesh the full group does not keep: symmetrise with the full group anyway
         k_list = join_by_full_symmetry(k_list, symmetry)
     grid = settings.fft_grid or fft_grid_for_cutoff(crystal.lattice, settings.cutoff)
+    if plane_waves is not None and len(plane_waves) != len(k_list.fractional):
+        raise ValueError(f"{len(plane_waves)} plane-wave sets for {len(k_list.fractional)} "
+                         "k-points")
     try:
-        bases = [make_basis(crystal.lattice, k, settings.cutoff, grid) for k in k_list.fractional]
+        if plane_waves is None:
+            bases = [make_basis(crystal.lattice, k, settings.cutoff, grid)
+                     for k in k_list.fractional]
+        else:
+            bases = [basis_from_miller(crystal.lattice, k, m, grid)
+                     for k, m in zip(k_list.fractional, plane_waves)]
     except ValueError as exc:
         raise InputError(f"{exc}; use a larger grid or remove the setting",
                          key="basis.fft_grid", value=list(grid)) from None

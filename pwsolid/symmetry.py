@@ -34,6 +34,7 @@ __all__ = [
     "SymmetryOperations",
     "find_symmetry",
     "identity_only",
+    "atom_permutations",
     "DensitySymmetrizer",
     "make_density_symmetrizer",
     "reduced_lattice",
@@ -174,6 +175,42 @@ def find_symmetry(crystal: Crystal, tolerance: float = 1e-5) -> SymmetryOperatio
 
     return SymmetryOperations(get("rotations"), get("translations"),
                               str(get("international")), int(get("number")))
+
+
+def atom_permutations(operations: SymmetryOperations, positions: np.ndarray, species,
+                      tolerance: float = 1e-4) -> np.ndarray:
+    """Where each operation sends each atom.
+
+    Parameters
+    ----------
+    operations : SymmetryOperations
+    positions : ndarray, shape (n_atoms, 3), float
+        Fractional coordinates.
+    species : sequence of str, one per atom
+    tolerance : float
+        Largest fractional mismatch (modulo 1) accepted as the same site.
+
+    Returns
+    -------
+    ndarray, shape (n_ops, n_atoms), int
+        ``perm[o, i] = j`` when ``W_o x_i + t_o`` equals ``x_j`` modulo a lattice
+        vector and atom j has the species of atom i.
+
+    Raises
+    ------
+    ValueError
+        When an operation maps an atom onto no atom of its species (the
+        operations are not symmetries of these positions).
+    """
+    pos = np.asarray(positions, float).reshape(-1, 3)
+    labels = np.array(list(species))
+    images = np.einsum("oij,aj->oai", operations.rotations, pos) + operations.translations[:, None]
+    diff = images[:, :, None, :] - pos[None, None, :, :]                  # (n_ops, i, j, 3)
+    close = np.all(np.abs(diff - np.rint(diff)) < tolerance, axis=-1)
+    close &= labels[:, None] == labels[None, :]
+    if not np.all(close.any(axis=-1)):
+        raise ValueError("an operation maps an atom onto no atom of its species")
+    return np.argmax(close, axis=-1)
 
 
 def _inverse_transposes(rotations: np.ndarray) -> np.ndarray:

@@ -13,7 +13,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["GridExchangeCorrelation", "exchange_correlation_on_grid"]
+__all__ = ["GridExchangeCorrelation", "exchange_correlation_on_grid", "gradient_stress"]
 
 
 @dataclass(frozen=True)
@@ -22,10 +22,18 @@ class GridExchangeCorrelation:
 
     ``potential`` has the shape of the density given: ``(*grid)`` unpolarised,
     ``(2, *grid)`` for (up, down).
+
+    Gradient functionals also keep what the stress needs: ``gradients``
+    ``(n_spin, 3, *grid)`` (bohr^-4), the spectral gradients of the density (up,
+    down), and ``sigma_derivatives``, the fields ``de/dsigma`` (unpolarised, one) or
+    ``(de/dsigma_uu, de/dsigma_ud, de/dsigma_dd)`` (polarised) in Ha bohr^5; both
+    ``None`` for local functionals.
     """
 
     energy_density: np.ndarray
     potential: np.ndarray
+    gradients: np.ndarray | None = None
+    sigma_derivatives: tuple | None = None
 
     def energy(self, volume: float) -> float:
         """E_xc = int n eps_xc d^3r as a grid sum (Ha)."""
@@ -66,14 +74,15 @@ def exchange_correlation_on_grid(functional, density: np.ndarray, fft=None,
         (grad,) = _gradients(fft, g_vectors, density[None])
         e, de_dn, de_dsigma = functional.evaluate_gradient(density, _dot(grad, grad))
         (divergence,) = _divergences(fft, g_vectors, [2.0 * de_dsigma * grad])
-        return GridExchangeCorrelation(e, de_dn - divergence)
+        return GridExchangeCorrelation(e, de_dn - divergence, grad[None], (de_dsigma,))
     grad_up, grad_down = _gradients(fft, g_vectors, density)
     e, d_up, d_down, d_uu, d_ud, d_dd = functional.evaluate_gradient_polarized(
         density[0], density[1], _dot(grad_up, grad_up), _dot(grad_up, grad_down),
         _dot(grad_down, grad_down))
     div_up, div_down = _divergences(fft, g_vectors, [
         2.0 * d_uu * grad_up + d_ud * grad_down, 2.0 * d_dd * grad_down + d_ud * grad_up])
-    return GridExchangeCorrelation(e, np.stack([d_up - div_up, d_down - div_down]))
+    return GridExchangeCorrelation(e, np.stack([d_up - div_up, d_down - div_down]),
+                                   np.stack([grad_up, grad_down]), (d_uu, d_ud, d_dd))
 
 
 def _dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -98,3 +107,40 @@ def _divergences(fft, g_vectors: np.ndarray, vectors: list[np.ndarray]) -> list[
     g = np.moveaxis(g_vectors, -1, 0)
     summed = np.einsum("fa...,a...->f...", coefficients.reshape(shape), 1j * g)
     return list(fft.to_real(summed).real)
+
+
+def gradient_stress(xc: GridExchangeCorrelation) -> np.ndarray:
+    """Gradient part of the exchange-correlation stress (3, 3), Ha/bohr^3.
+
+    Notes
+    -----
+    A strain eps changes the gradient invariants beyond their scaling with the
+    density: d sigma / d eps_ab = -2 sigma delta_ab - 2 d_a n d_b n. The uniform part
+    belongs to the diagonal term (E_xc - int v_xc n) delta_ab / Omega; what is left is
+
+        sigma_ab = -(1/Omega) int [2 e_uu d_a n_up d_b n_up
+                                   + e_ud (d_a n_up d_b n_dn + d_a n_dn d_b n_up)
+                                   + 2 e_dd d_a n_dn d_b n_dn] d^3r,
+
+    e_xy = de/dsigma_xy (unpolarised: -(1/Omega) int 2 (de/dsigma) d_a n d_b n), a grid
+    mean here. Zero for a local functional.
+
+    References
+    ----------
+    O. H. Nielsen and R. M. Martin, Phys. Rev. B 32, 3780 (1985) (the stress theorem);
+    the gradient term as in A. Dal Corso and R. Resta, Phys. Rev. B 50, 4327 (1994)
+    (from memory).
+    """
+    if xc.gradients is None:
+        return np.zeros((3, 3))
+
+    def outer(a, b, weight):
+        return np.einsum("a...,b...,...->ab", a, b, weight) / weight.size
+
+    if len(xc.gradients) == 1:
+        (grad,), (d,) = xc.gradients, xc.sigma_derivatives
+        return -2.0 * outer(grad, grad, d)
+    up, down = xc.gradients
+    d_uu, d_ud, d_dd = xc.sigma_derivatives
+    cross = outer(up, down, d_ud)
+    return -(2.0 * outer(up, up, d_uu) + cross + cross.T + 2.0 * outer(down, down, d_dd))

@@ -46,6 +46,11 @@ class PartialCore:
         q = np.asarray(q, dtype=float)
         return self.charge * np.exp(-0.5 * (q * self.radius) ** 2)
 
+    def form_factor_derivative(self, q: np.ndarray) -> np.ndarray:
+        """d n_c(q) / dq = -Q r_c^2 q exp(-q^2 r_c^2 / 2) (electrons bohr)."""
+        q = np.asarray(q, dtype=float)
+        return -self.charge * self.radius ** 2 * q * np.exp(-0.5 * (q * self.radius) ** 2)
+
 
 def fit_partial_core(r: np.ndarray, weights: np.ndarray, core_density: np.ndarray,
                      matching_radius: float) -> PartialCore:

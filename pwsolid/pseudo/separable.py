@@ -22,7 +22,8 @@ import numpy as np
 from scipy.special import gamma
 
 __all__ = ["ProjectorChannel", "SeparablePart", "projector_radial", "projector_radial_real",
-           "real_spherical_harmonics", "hgh_off_diagonal", "nonlocal_operator"]
+           "real_spherical_harmonics", "hgh_off_diagonal", "nonlocal_operator",
+           "projector_gradients"]
 
 _PI54 = math.pi ** 1.25
 
@@ -189,3 +190,97 @@ def nonlocal_operator(kpg: np.ndarray, atoms: list[tuple[np.ndarray, SeparablePa
         coupling[start:start + b.shape[0], start:start + b.shape[0]] = b
         start += b.shape[0]
     return proj, coupling
+
+
+# p_i^l(q) = A q^l L(g^2) exp(-g^2/2), g = q r_l: A / (pi^(5/4) r_l^(l+3/2)) and the
+# coefficients of L in powers of g^2 (the table of projector_radial, Notes)
+_RADIAL_POLYNOMIALS = {
+    (0, 1): (4 * math.sqrt(2), (1.0,)),
+    (0, 2): (8 * math.sqrt(2 / 15), (3.0, -1.0)),
+    (0, 3): (16 / 3 * math.sqrt(2 / 105), (15.0, -10.0, 1.0)),
+    (1, 1): (8 * math.sqrt(1 / 3), (1.0,)),
+    (1, 2): (16 * math.sqrt(1 / 105), (5.0, -1.0)),
+    (1, 3): (32 / 3 * math.sqrt(1 / 1155), (35.0, -14.0, 1.0)),
+    (2, 1): (8 * math.sqrt(2 / 15), (1.0,)),
+    (2, 2): (16 * math.sqrt(2 / 945), (7.0, -1.0)),
+    (2, 3): (32 / 3 * math.sqrt(2 / 15015), (63.0, -18.0, 1.0)),
+}
+
+
+def _solid_harmonics(l: int, v: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """S_lm(v) = |v|^l Y_lm(v_hat) (2l+1, n) and its gradient (3, 2l+1, n), the
+    homogeneous polynomials behind :func:`real_spherical_harmonics` (same order)."""
+    x, y, z = np.asarray(v, float).T
+    zero, one = np.zeros_like(x), np.ones_like(x)
+    if l == 0:
+        c = 1 / math.sqrt(4 * math.pi)
+        return np.full((1, len(x)), c), np.zeros((3, 1, len(x)))
+    if l == 1:
+        c = math.sqrt(3 / (4 * math.pi))
+        grad = np.stack([np.stack([one, zero, zero]), np.stack([zero, one, zero]),
+                         np.stack([zero, zero, one])], axis=1)       # (3 b, 3 m, n)
+        return c * np.stack([x, y, z]), c * grad
+    c, c0, c2 = (math.sqrt(15 / (4 * math.pi)), math.sqrt(5 / (16 * math.pi)),
+                 math.sqrt(15 / (16 * math.pi)))
+    values = np.stack([c * x * y, c * y * z, c * x * z, c0 * (2 * z * z - x * x - y * y),
+                       c2 * (x * x - y * y)])
+    grad = np.stack([
+        np.stack([c * y, zero, c * z, -2 * c0 * x, 2 * c2 * x]),
+        np.stack([c * x, c * z, zero, -2 * c0 * y, -2 * c2 * y]),
+        np.stack([zero, c * y, c * x, 4 * c0 * z, zero]),
+    ])
+    return values, grad
+
+
+def projector_gradients(kpg: np.ndarray, tau: np.ndarray, part: SeparablePart,
+                        volume: float) -> np.ndarray:
+    """Gradients of one atom's projector coefficients with respect to k + G.
+
+    Parameters
+    ----------
+    kpg : (n_pw, 3), 1/bohr
+        Cartesian k + G of the basis.
+    tau : (3,), bohr
+        Cartesian position of the atom.
+    part : SeparablePart
+    volume : float
+        Cell volume (bohr^3).
+
+    Returns
+    -------
+    ndarray (3, n_proj, n_pw) complex
+        ``[b, a, G] = d/dq_b [p_i^l(|q|) Y_lm(q_hat)]`` at q = k + G, times the
+        structure phase exp(-i (k+G).tau) / sqrt(Omega) held fixed; rows in the
+        order of :func:`nonlocal_operator` for this atom alone.
+
+    Notes
+    -----
+    With p_i^l(q) Y_lm = A L(g^2) exp(-g^2/2) S_lm(q), S_lm = q^l Y_lm the solid
+    harmonic and g = q r_l, the gradient is
+
+        A exp(-g^2/2) [2 r_l^2 (L'(g^2) - L/2) S_lm q + L grad S_lm],
+
+    free of any division by |q|. A homogeneous strain changes k + G at fixed Miller
+    index and fixed (k+G).tau; its derivative of the nonlocal energy follows from
+    these gradients (Nielsen and Martin, Phys. Rev. B 32, 3780 (1985)).
+    """
+    q = np.asarray(kpg, float)
+    phase = np.exp(-1j * q @ np.asarray(tau, float)) / math.sqrt(volume)
+    g2_over_r2 = np.einsum("ij,ij->i", q, q)
+    rows = []
+    for ch in part.channels:
+        r2 = ch.radius ** 2
+        g2 = g2_over_r2 * r2
+        e = np.exp(-g2 / 2)
+        s, grad_s = _solid_harmonics(ch.l, q)
+        for i in range(ch.n_radial):
+            amp, coeffs = _RADIAL_POLYNOMIALS[(ch.l, i + 1)]
+            amp *= _PI54 * ch.radius ** (ch.l + 1.5)
+            poly = np.polynomial.polynomial.polyval(g2, coeffs)
+            slope = np.polynomial.polynomial.polyval(
+                g2, np.polynomial.polynomial.polyder(coeffs)) if len(coeffs) > 1 else 0.0
+            along_q = 2 * r2 * (slope - poly / 2)                        # (n_pw,)
+            rows.append(amp * e * (along_q * s[None] * q.T[:, None, :] + poly * grad_s))
+    if not rows:
+        return np.zeros((3, 0, len(q)), complex)
+    return np.concatenate(rows, axis=1) * phase

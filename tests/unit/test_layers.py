@@ -8,10 +8,10 @@ import pwsolid
 PACKAGE = Path(pwsolid.__file__).parent
 LAYERS = {
     0: {"units", "errors", "resources", "_version", "progress", "safe_files"},
-    1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos"},
+    1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos", "optimize"},
     2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath"},
     3: {"pseudo", "electrostatics", "hamiltonian", "energies", "xc_grid"},  # pseudo/atom.py too
-    4: {"scf", "parallel", "settings", "checkpoint"},
+    4: {"scf", "parallel", "settings", "checkpoint", "forces", "stress"},
     5: {"workflows"},
     6: {"config", "results", "plots", "cli", "commands", "interop"},
 }
