@@ -118,17 +118,20 @@ class PwsolidCalculator(_calculator.Calculator):
         return super().get_property(name, atoms, allow_calculation)
 
     def _start_for(self, crystal):
-        """(density, orbitals) of the previous geometry if they fit the new one."""
+        """(density, orbitals) of the previous geometry carried to the new cell."""
         prev = self.ground_state
-        if not self.warm_start or prev is None:
+        if not self.warm_start or prev is None or prev.crystal.species != crystal.species:
             return None, None
         from ..basis import fft_grid_for_cutoff
-        from ..scf import WavefunctionStart
-        old = prev.crystal
-        grid = self.settings.fft_grid or fft_grid_for_cutoff(crystal.lattice, self.settings.cutoff)
-        if (tuple(grid) != prev.setup.grid_shape or old.species != crystal.species):
-            return None, None
-        density = prev.density if prev.spin_densities is None else prev.spin_densities
+        from ..warm_start import WavefunctionStart, transfer_density
+        grid = tuple(self.settings.fft_grid
+                     or fft_grid_for_cutoff(crystal.lattice, self.settings.cutoff))
+        old_volume = prev.crystal.volume
+        if prev.spin_densities is not None and grid == prev.setup.grid_shape:
+            density = prev.spin_densities * (old_volume / crystal.volume)
+        else:
+            density = transfer_density(prev.density, old_volume, grid, crystal.volume)
+        # orbitals carry over by Miller index when the k-points are the same
         return density, WavefunctionStart.of(prev)
 
     def pressure_gpa(self) -> float:

@@ -139,3 +139,33 @@ def test_calculator_returns_the_native_forces_and_stress():
                                rtol=0, atol=1e-12)
     np.testing.assert_allclose(stress, stress_tensor(gs).tensor * HARTREE_EV / BOHR_ANGSTROM ** 3,
                                rtol=0, atol=1e-12)
+
+
+@pytest.mark.slow
+def test_ase_optimiser_and_native_relaxation_reach_the_same_structure():
+    # two optimisers (ASE's BFGS on pwsolid forces; pwsolid's own BFGS) on the same
+    # energy surface of a cell with every atom displaced and no symmetry left: the
+    # minimum is the same structure (1e-3 bohr; both stop at forces of 5e-5 Ha/bohr,
+    # which with force constants of ~0.2 Ha/bohr^2 leaves ~2.5e-4 bohr)
+    from pwsolid.crystal import diamond
+    from pwsolid.interop.ase_structures import atoms_from_crystal
+    from pwsolid.workflows.relaxation import RelaxationSettings, relax_structure
+    rng = np.random.default_rng(7)
+    start = diamond(5.43 / BOHR_ANGSTROM, "Si")
+    start = type(start)(start.lattice, start.species,
+                        start.positions + rng.uniform(-0.01, 0.01, start.positions.shape))
+    settings = SETTINGS
+    native = relax_structure(start, settings, RelaxationSettings(
+        moves="positions", force_threshold=5e-5, keep_symmetry=False))
+    assert native.converged
+    atoms = atoms_from_crystal(start)
+    atoms.calc = PwsolidCalculator(settings)
+    assert BFGS(atoms, logfile=None).run(fmax=5e-5 * HARTREE_EV / BOHR_ANGSTROM, steps=40)
+    ours = native.crystal.cartesian_positions
+    theirs = atoms.get_positions() / BOHR_ANGSTROM
+    # compare the bond vector (a common translation of both atoms costs nothing), up
+    # to a lattice vector (ASE keeps atoms unwrapped, pwsolid wraps them into the cell)
+    gap = (theirs[1] - theirs[0]) - (ours[1] - ours[0])
+    frac = gap @ np.linalg.inv(start.lattice)
+    gap = (frac - np.round(frac)) @ start.lattice
+    assert np.abs(gap).max() < 1e-3
