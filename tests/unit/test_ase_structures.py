@@ -136,3 +136,40 @@ def test_molecule_slab_and_bad_files_are_refused(tmp_path):
 def test_missing_library_names_the_extra():
     with pytest.raises(MissingExtraError, match=r'pip install "pwsolid\[nothing\]"'):
         require("a_module_that_does_not_exist_here", "nothing", "this feature")
+
+
+def _input(tmp_path, crystal_lines: str) -> Path:
+    import shutil
+    for name in ("silicon-diamond.cif", "water-molecule.xyz"):
+        shutil.copy(DATA / name, tmp_path / name)
+    path = tmp_path / "from-file.toml"
+    path.write_text(f"[crystal]\n{crystal_lines}\n[basis]\ncutoff = \"6 Ha\"\n")
+    return path
+
+
+def test_input_key_reads_the_crystal_from_a_structure_file(tmp_path):
+    from pwsolid.config import load_input
+    run = load_input(_input(tmp_path, 'structure_file = "silicon-diamond.cif"\n'
+                                      'primitive_cell = true'))
+    ref = diamond(SI_A / BOHR_ANGSTROM, "Si")
+    np.testing.assert_allclose(run.crystal.lattice, ref.lattice, atol=1e-9)
+    assert run.echo["crystal"]["space_group_number_found"] == 227
+    conventional = load_input(_input(tmp_path, 'structure_file = "silicon-diamond.cif"'))
+    assert conventional.crystal.n_atoms == 8
+
+
+@pytest.mark.parametrize("lines, key, words", [
+    ('structure_file = "silicon-diamond.cif"\nprototype = "diamond"', "crystal.prototype",
+     "not used with crystal.structure_file"),
+    ('structure_file = "water-molecule.xyz"', "crystal.structure_file", "not periodic"),
+    ('structure_file = "nothing-here.cif"', "crystal.structure_file", "not found"),
+    ('structure_file = "silicon-diamond.cif"\nsymmetry_tolerance = "5 bohr"',
+     "crystal.symmetry_tolerance", "between"),
+    ('prototype = "diamond"\nlattice_constant = "5.43 angstrom"\nspecies = "Si"\n'
+     'primitive_cell = true', "crystal.primitive_cell", "only used with"),
+])
+def test_structure_file_mistakes_get_one_clear_message(tmp_path, capsys, lines, key, words):
+    from pwsolid.cli import main
+    assert main(["check-input", str(_input(tmp_path, lines))]) == 3
+    err = capsys.readouterr().err
+    assert key in err and words in err and "Traceback" not in err
