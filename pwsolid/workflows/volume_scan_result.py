@@ -13,7 +13,9 @@ the difference. At a fixed cutoff the difference is the basis-set (Pulay) stress
 which the analytic stress leaves out and the energies of a fixed-cutoff scan
 contain, plus the fit's own error; for a c/a point away from the optimal c/a it
 also holds the first-order change of the energy with c/a (the fit is to the
-relaxed E(V)). Points from an older restart file without a stress keep
+relaxed E(V)); with smearing, the fit is to the zero-width energy and the stress
+is the derivative of the free energy F, which adds the smearing's share (small at
+usual widths). Points from an older restart file without a stress keep
 ``stress = None``: the stress needs the orbitals, which the file does not keep, so
 it is not recomputed (that would cost the point's whole SCF).
 """
