@@ -22,6 +22,7 @@ from .pseudo import Pseudopotential, load_pseudopotential
 from .results import ground_state_document, load_density, save_density, write_json
 from .scf import GroundState, WavefunctionStart, ground_state, prepare
 from .forces import AtomicForces, atomic_forces
+from .stress import StressTensor, stress_tensor
 from .settings import GroundStateSettings
 from .symmetry import SymmetryOperations, find_symmetry
 from .units import BOHR_ANGSTROM, HARTREE_EV, parse_quantity
@@ -60,6 +61,6 @@ __all__ = [
     "StructureComparison", "band_structure", "empirical_band_structure", "BandStructure",
     "density_of_states", "DOSResult", "testbench_report", "uniform_gas_table", "UniformGasReport",
     "load_user_functional", "check_exact_conditions", "WavefunctionStart",
-    "AtomicForces", "atomic_forces",
+    "AtomicForces", "atomic_forces", "StressTensor", "stress_tensor",
     "relax_structure", "relax_lattice", "RelaxationSettings", "RelaxationResult",
 ]

@@ -47,6 +47,12 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--overwrite", action="store_true",
                      help="replace a finished result document")
     run.add_argument("--quiet", action="store_true", help="print only the summary")
+    run.add_argument("--energy-only", action="store_true",
+                     help="skip the forces on the atoms and the stress tensor (computed by "
+                          "default after the SCF, at a few per cent of its cost)")
+    run.add_argument("--basis-stress-estimate", action="store_true",
+                     help="also estimate the basis-set (Pulay) stress of the fixed cutoff "
+                          "(two more SCFs at lower cutoffs)")
 
     check = sub.add_parser("check-input", help="run every check the run makes before its first "
                            "iteration (outputs, electrons, bands, memory) and print the estimate")
@@ -187,7 +193,9 @@ def _ground_state(args) -> int:
                 "continue" if where.exists() else "no iteration was completed")
         print(f"pwsolid: interrupted; {hint}", file=sys.stderr)
         return 130
-    doc = ground_state_document(gs, input_echo=run.echo, title=run.title)
+    forces, stress = _derivatives(gs, args)
+    doc = ground_state_document(gs, input_echo=run.echo, title=run.title, forces=forces,
+                                stress=stress)
     if args.writes_files:
         files["result"] = write_or_keep(files["result"], lambda p: write_json(p, doc), "result")
         files["density"] = write_or_keep(files["density"], lambda p: save_density(p, gs),
@@ -195,11 +203,26 @@ def _ground_state(args) -> int:
         if gs.converged and files["checkpoint"].exists():
             files["checkpoint"].unlink()     # the result and the density are final
     print(_summary(doc))
+    for block in (forces, stress):
+        if block is not None:
+            print("\n" + "\n".join("  " + line for line in block.summary_lines()))
     print(f"Result written to {files['result']}\nDensity written to {files['density']}")
     if not gs.converged:
         print("pwsolid: " + gs.messages[-1], file=sys.stderr)
         return EXIT_NOT_CONVERGED
     return EXIT_OK
+
+
+def _derivatives(gs, args):
+    """(forces, stress) of a ground state unless ``--energy-only``; (None, None) then.
+
+    They are derivatives of the converged energy: of an unconverged SCF they are
+    computed all the same (the document says ``converged: false``)."""
+    if args.energy_only:
+        return None, None
+    from .forces import atomic_forces
+    from .stress import stress_tensor
+    return atomic_forces(gs), stress_tensor(gs, pulay=args.basis_stress_estimate)
 
 
 def _note_low_cutoff(run) -> None:

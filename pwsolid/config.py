@@ -51,6 +51,8 @@ _C_OVER_A_MAX = 50.0
 _VECTOR_ENTRY_MAX = 100.0
 _SUPERCELL_MAX = 20
 _MAX_ATOMS = 500
+# keys of [crystal] that only a structure file uses
+_FILE_ONLY_KEYS = ("symmetry_tolerance", "primitive_cell")
 
 
 @dataclass(frozen=True)
@@ -93,7 +95,8 @@ _KIND_TEXT = {
 #: Keys of [crystal]: read by the reader's own code (they build a Crystal), declared here.
 CRYSTAL_KEYS: tuple[Setting, ...] = (
     Setting("crystal.prototype", None, "name", "structure",
-            choices=lambda: (*PROTOTYPES, _EXPLICIT), default_text="required"),
+            choices=lambda: (*PROTOTYPES, _EXPLICIT),
+            default_text="required (unless structure_file)"),
     Setting("crystal.lattice_constant", None, "quantity",
             "cube edge / hexagonal a; scales lattice_vectors for 'explicit'", unit="length",
             low=_LATTICE_RANGE_BOHR[0], high=_LATTICE_RANGE_BOHR[1], default_text="required",
@@ -111,6 +114,16 @@ CRYSTAL_KEYS: tuple[Setting, ...] = (
             "rows a1, a2, a3 in units of lattice_constant", default_text="required (explicit)"),
     Setting("crystal.atoms", None, "atoms", "atoms with species and fractional position",
             default_text="required (explicit)"),
+    Setting("crystal.structure_file", None, "file",
+            "read the cell and atoms from a structure file (CIF, or any format ASE reads; "
+            "needs the ase extra) instead of a prototype", default_text="none"),
+    Setting("crystal.symmetry_tolerance", None, "quantity",
+            "atoms of a structure file this close to symmetric positions count as symmetric; "
+            "the structure is made exactly symmetric at it", unit="length", low=1e-6,
+            high=1.0, rule="must lie between 1e-06 and 1 bohr", default_text='"0.001 bohr"'),
+    Setting("crystal.primitive_cell", None, "boolean",
+            "reduce a structure file's cell to a primitive one (a CIF usually gives the "
+            "conventional cell)", default_text="false"),
     Setting("crystal.supercell", None, "integers3",
             f"repeats along a1, a2, a3 (1 to {_SUPERCELL_MAX})", low=1, high=_SUPERCELL_MAX,
             rule=f"each repeat must be an integer from 1 to {_SUPERCELL_MAX}",
@@ -525,7 +538,50 @@ class _Reader:
                 if key in table}
 
     # -- sections ------------------------------------------------------------
+    def _crystal_from_file(self, table: Mapping) -> tuple[Crystal, dict]:
+        """[crystal] with ``structure_file``: the cell and atoms come from the file."""
+        from .interop import MissingExtraError
+        from .interop.ase_structures import DEFAULT_SYMMETRY_TOLERANCE, read_structure
+
+        for key in table:
+            if key not in (*_FILE_ONLY_KEYS, "structure_file", "supercell"):
+                self.fail(f"'crystal.{key}' is not used with crystal.structure_file: the file "
+                          "gives the cell and the atoms", f"crystal.{key}", table[key])
+        text = self._file_text(table["structure_file"], "crystal.structure_file")
+        path = (self.base_dir / Path(text).expanduser())
+        spec = _SCHEMA["crystal"]
+        tolerance = (self._checked(table["symmetry_tolerance"], spec["symmetry_tolerance"])
+                     if "symmetry_tolerance" in table else DEFAULT_SYMMETRY_TOLERANCE)
+        primitive = (self._checked(table["primitive_cell"], spec["primitive_cell"])
+                     if "primitive_cell" in table else False)
+        try:
+            found = read_structure(path, symmetry_tolerance=tolerance, primitive=primitive)
+        except MissingExtraError as exc:
+            self.fail(str(exc), "crystal.structure_file", text)
+        supercell = (1, 1, 1)
+        if "supercell" in table:
+            supercell = self._checked(table["supercell"], spec["supercell"])
+        crystal = found.crystal
+        if crystal.n_atoms * int(np.prod(supercell)) > _MAX_ATOMS:
+            self.fail(f"the cell would hold {crystal.n_atoms * int(np.prod(supercell))} atoms; "
+                      f"at most {_MAX_ATOMS} are accepted", "crystal.supercell", list(supercell))
+        if supercell != (1, 1, 1):
+            crystal = crystal.supercell(supercell)
+        echo = {"structure_file": str(path), "symmetry_tolerance": f"{tolerance:g} bohr",
+                "primitive_cell": primitive, "supercell": list(supercell),
+                "space_group_found": found.space_group,
+                "space_group_number_found": found.space_group_number,
+                "import_notes": list(found.messages)}
+        return crystal, echo
+
     def _crystal(self, table: Mapping) -> tuple[Crystal, dict]:
+        if "structure_file" in table:
+            return self._crystal_from_file(table)
+        for key in _FILE_ONLY_KEYS:
+            if key in table:
+                self.fail(f"'crystal.{key}' is only used with crystal.structure_file",
+                          f"crystal.{key}", table[key])
+
         def need(key):
             if key not in table:
                 self.fail(f"missing required key 'crystal.{key}'", key=f"crystal.{key}")

@@ -30,8 +30,13 @@ def _ev(x):
 
 
 def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
-                          title: str = "") -> dict:
-    """The JSON-ready result document of a ground state (schema ``RESULT_SCHEMA``)."""
+                          title: str = "", forces=None, stress=None) -> dict:
+    """The JSON-ready result document of a ground state (schema ``RESULT_SCHEMA``).
+
+    ``forces`` (:class:`pwsolid.forces.AtomicForces`) and ``stress``
+    (:class:`pwsolid.stress.StressTensor`), when given, become the ``forces`` and
+    ``stress`` blocks; otherwise those blocks are ``None``.
+    """
     setup = gs.setup
     kf = setup.kpoints.fractional
     nk = len(kf)
@@ -95,6 +100,8 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
                                   "radius_bohr": pp.partial_core.radius})}
             for s, pp in setup.pseudopotentials.items()},
         "settings": setup.settings.as_dict(),
+        "forces": None if forces is None else forces.as_document(),
+        "stress": None if stress is None else stress.as_document(),
         "input": input_echo,
         "timing": {"wall_seconds": gs.wall_seconds, "fft_seconds": gs.fft_seconds,
                    "subspace_blas_seconds": gs.blas_seconds},

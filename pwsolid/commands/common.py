@@ -18,7 +18,7 @@ from typing import Callable
 
 import numpy as np
 
-from ..units import BOHR_ANGSTROM, HARTREE_EV
+from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
 from ..errors import (EXIT_INTERNAL, EXIT_INVALID_INPUT, EXIT_NOT_CONVERGED, EXIT_OK,
                       EXIT_USAGE, InputError)
 
@@ -311,6 +311,30 @@ def scan_table(scan) -> list[str]:
     lines.append("  * preferred form")
     if scan.c_over_a_values:
         lines.append(f"  optimal c/a at V0: {scan.c_over_a_at(scan.v0):.4f}")
+    return lines + pressure_lines(scan)
+
+
+def pressure_lines(scan) -> list[str]:
+    """Per point: V, the analytic pressure and -dE/dV of the preferred fit (GPa);
+    empty when no point has a pressure."""
+    cmp = scan.pressure_comparison()
+    if cmp["largest"] is None:
+        return []
+    gpa = HA_PER_BOHR3_GPA
+    q_col = scan.c_over_a_values is not None
+    head = (f"  {'V (A^3)':>11}" + (f"{'c/a':>8}" if q_col else "")
+            + f"{'P (GPa)':>11}{'-dE/dV fit':>12}{'difference':>12}")
+    lines = ["", "  pressure at each point (analytic stress) and from the "
+             f"{_LABELS.get(scan.preferred_form, scan.preferred_form)} fit:", head]
+    for p, pa, pf, d in zip(scan.points, cmp["pressures"], cmp["fit_pressures"],
+                            cmp["differences"]):
+        q = f"{p.c_over_a:>8.4f}" if q_col else ""
+        shown = (f"{pa * gpa:>11.3f}" if np.isfinite(pa) else f"{'-':>11}")
+        diff = (f"{d * gpa:>12.3f}" if np.isfinite(d) else f"{'-':>12}")
+        lines.append(f"  {p.volume * BOHR_ANGSTROM ** 3:>11.4f}{q}{shown}{pf * gpa:>12.3f}{diff}")
+    lines.append(f"  largest |difference| {cmp['largest'] * gpa:.3f} GPa, mean "
+                 f"{cmp['mean'] * gpa:+.3f} GPa (at a fixed cutoff the mean is minus the "
+                 "basis-set (Pulay) pressure)")
     return lines
 
 

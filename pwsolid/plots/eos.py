@@ -4,8 +4,10 @@
 :class:`~pwsolid.workflows.equation_of_state.VolumeScan` ready to draw: the
 computed energies per atom relative to the preferred fit's minimum (meV/atom)
 against the volume per cell (angstrom^3), a curve per fitted form, and beneath,
-on the same volume axis, each form's residuals. A c/a scan gets a third panel
-with the optimal c/a. Points added by range extensions are drawn hollow.
+on the same volume axis, each form's residuals. When the points carry their
+analytic pressure, a panel P(V) (GPa) sets them against -dE/dV of the preferred
+fit. A c/a scan gets a panel with the optimal c/a. Points added by range
+extensions are drawn hollow.
 """
 
 from __future__ import annotations
@@ -14,7 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from ..units import BOHR_ANGSTROM, HARTREE_EV
+from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
 from . import PALETTE, new_axes, save_figure
 
 __all__ = ["EquationOfStatePlot"]
@@ -46,6 +48,10 @@ class EquationOfStatePlot:
     title: str = ""
     c_over_a: np.ndarray | None = None  # optimal c/a per volume (c/a scans)
     extras: dict = field(default_factory=dict)
+    # analytic pressure of each point that has one: (volumes angstrom^3, GPa); and the
+    # preferred fit's -dE/dV on the dense volumes (angstrom^3, GPa); None without pressures
+    pressures: tuple | None = None
+    fit_pressure: tuple | None = None
 
     @classmethod
     def from_scan(cls, scan, title: str = "") -> "EquationOfStatePlot":
@@ -72,23 +78,41 @@ class EquationOfStatePlot:
                    f"B0' = {scan.b0_prime:.2f}")
         if not title:
             title = f"{_formula(scan.crystal)}: energy against volume"
+        pressures = fit_pressure = None
+        cmp = scan.pressure_comparison()
+        have = np.isfinite(cmp["pressures"])
+        if have.any():
+            pressures = (cmp["volumes"][have] * _A3, cmp["pressures"][have] * HA_PER_BOHR3_GPA)
+            fit_pressure = (dense * _A3,
+                            np.asarray(scan.fit.pressure(dense), float) * HA_PER_BOHR3_GPA)
         return cls(volumes=v * _A3, energies=(np.asarray(scan.energies) - e_ref) * _MEV / n,
                    extended=extended, curves=curves, residuals=residuals,
                    preferred=scan.preferred_form, v0=scan.v0 * _A3, summary=summary,
                    title=title,
                    c_over_a=None if scan.optimal_c_over_a is None
-                   else np.asarray(scan.optimal_c_over_a, float))
+                   else np.asarray(scan.optimal_c_over_a, float),
+                   pressures=pressures, fit_pressure=fit_pressure)
+
+    @property
+    def panels(self) -> tuple[str, ...]:
+        """The panels drawn, top to bottom: energy, [pressure], residuals, [c/a]."""
+        return (("energy",) + (("pressure",) if self.pressures is not None else ())
+                + ("residuals",) + (("c_over_a",) if self.c_over_a is not None else ()))
 
     def plot(self, axes=None):
-        """Draw into ``axes`` (a sequence of 2, or 3 for c/a scans) or a new figure; returns it."""
-        rows = 3 if self.c_over_a is not None else 2
+        """Draw into ``axes`` (one per entry of :attr:`panels`) or a new figure; returns it."""
+        panels = self.panels
+        rows = len(panels)
         if axes is None:
-            ratios = [3.0, 1.3] + ([1.3] if rows == 3 else [])
-            fig, axes = new_axes(rows, 1, sharex=True, figsize=(6.4, 4.2 + 1.3 * (rows - 1)),
+            ratios = [3.0] + [1.3 if p != "pressure" else 2.0 for p in panels[1:]]
+            fig, axes = new_axes(rows, 1, sharex=True,
+                                 figsize=(6.4, 4.2 + 1.3 * (rows - 1)
+                                          + (0.7 if "pressure" in panels else 0.0)),
                                  gridspec_kw={"height_ratios": ratios, "hspace": 0.08})
         else:
             fig = axes[0].figure
-        main, resid = axes[0], axes[1]
+        axis = dict(zip(panels, axes))
+        main, resid = axis["energy"], axis["residuals"]
         colours = {name: PALETTE[i % len(PALETTE)] for i, name in enumerate(self.curves)}
         for name, (vx, ey) in self.curves.items():
             main.plot(vx, ey, color=colours[name], lw=2.2 if name == self.preferred else 1.2,
@@ -115,12 +139,25 @@ class EquationOfStatePlot:
             resid.plot(self.volumes + off, r, marker="o", ms=3.2, lw=0.8, color=colours[name])
         resid.axhline(0.0, color=ink, lw=0.8)
         resid.set_ylabel("fit - computed\n(meV/atom)")
+        if "pressure" in axis:
+            self._plot_pressure(axis["pressure"], colours.get(self.preferred, PALETTE[0]), ink)
         if self.c_over_a is not None:
-            ax = axes[2]
+            ax = axis["c_over_a"]
             ax.plot(self.volumes, self.c_over_a, marker="s", ms=3.5, color=PALETTE[4])
             ax.set_ylabel("optimal c/a")
         axes[-1].set_xlabel("volume per cell (Å³)")
         return fig
+
+    def _plot_pressure(self, ax, colour, ink) -> None:
+        """P(V): the fit's -dE/dV as a line, the analytic pressures as diamonds."""
+        vx, py = self.fit_pressure
+        ax.plot(vx, py, color=colour, lw=1.8, zorder=2,
+                label=f"-dE/dV ({_LABELS.get(self.preferred, self.preferred)})")
+        ax.scatter(*self.pressures, s=26, marker="D", facecolor="#f1eee4", edgecolor=ink,
+                   linewidths=1.1, zorder=3, label="analytic stress")
+        ax.axhline(0.0, color="#8a8477", lw=0.8)
+        ax.set_ylabel("pressure (GPa)")
+        ax.legend(loc="best", fontsize=8)
 
     def save(self, stem, formats=("png", "svg")):
         """Draw a new figure and write ``stem.<format>`` for each format; returns the paths."""

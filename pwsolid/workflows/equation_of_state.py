@@ -35,6 +35,10 @@ What the workflow takes care of:
   finished neighbour yet, so it starts cold (or from an earlier round's
   density); energies then agree with a serial scan to the SCF tolerance, not
   to the last bit.
+* **Pressure.** After each point's SCF the analytic stress tensor of the ground
+  state is computed (:func:`pwsolid.stress.stress_tensor`; a few per cent of the
+  SCF's time) and kept with the point; the document sets the pressure beside
+  -dE/dV of the preferred fit (:meth:`VolumeScan.pressure_comparison`).
 * **Resume.** With ``store`` (a JSON file) every finished point is written at
   once (temporary file, fsync, rename), keyed by volume (and c/a), under the
   fingerprint of the calculation (:mod:`pwsolid.store`). A re-run with the same
@@ -65,11 +69,12 @@ from ..eos import EOS_FORMS, EOSFit, compare_fits, fit_equation_of_state
 from ..errors import ConvergenceWarning, InputError
 from ..parallel import map_over_ranks, world
 from ..settings import GroundStateSettings
+from ..units import HA_PER_BOHR3_GPA
 from ..warm_start import (WarmStart, extrapolate_density, starting_point, transfer_density,
                           wavefunction_start_of)
 from .cell_geometry import c_over_a_model, cell_kind, crystal_at, lattice_lengths, parabola_minimum
 from .scan_restart import ScanRestart
-from .volume_scan_result import EOS_SCAN_SCHEMA, ScanPoint, VolumeScan
+from .volume_scan_result import EOS_SCAN_SCHEMA, ScanPoint, VolumeScan, as_stress
 
 __all__ = ["ScanPoint", "VolumeScan", "WarmStart", "PointSolver", "scan_volumes",
            "transfer_density", "extrapolate_density", "lattice_lengths", "EOS_SCAN_SCHEMA"]
@@ -88,8 +93,11 @@ class PointSolver(Protocol):
     The outcome needs ``total_energy`` (Ha; a ``zero_width_energy``, when present,
     is used instead: with smearing it is the energy at vanishing width), ``converged`` (bool), ``iterations``
     (int) and ``density`` (array or None; kept to warm-start the next point);
-    optionally ``messages`` (tuple of str). A :class:`pwsolid.scf.GroundState`
-    has them all. Tests pass a cheap model energy here instead of the SCF.
+    optionally ``messages`` (tuple of str) and ``stress`` ((3, 3) Ha/bohr^3 or a
+    :class:`pwsolid.stress.StressTensor`). A :class:`pwsolid.scf.GroundState`
+    has them all but the stress, which the scan then computes from it
+    (:func:`pwsolid.stress.stress_tensor`, a few per cent of the SCF). Tests pass
+    a cheap model energy here instead of the SCF.
     """
 
     def __call__(self, crystal: Crystal, settings: GroundStateSettings,
@@ -172,8 +180,10 @@ class _ScanRun:
                                                 self._nearest_start(v, q))
         # metals: the zero-width estimate is the energy to compare volumes with
         energy = getattr(outcome, "zero_width_energy", outcome.total_energy)
+        stress = _stress_of(outcome)
         p = ScanPoint(v, q, float(energy), bool(outcome.converged), int(outcome.iterations),
-                      time.perf_counter() - t0, stage=stage, notes=tuple(notes))
+                      time.perf_counter() - t0, stage=stage, notes=tuple(notes),
+                      stress=stress)
         if not math.isfinite(p.energy):
             raise InputError("the solver returned a non-finite energy", key="energy",
                              value=p.energy)
@@ -197,6 +207,21 @@ class _ScanRun:
         self.done += 1
         if self.progress is not None:
             self.progress(self.done, self.total)
+
+
+def _stress_of(outcome) -> tuple | None:
+    """The stress (Ha/bohr^3) of a point: the solver's own, else the analytic stress of
+    a ground state (Nielsen and Martin, Phys. Rev. B 32, 3780 (1985)), else None."""
+    given = getattr(outcome, "stress", None)
+    if given is not None:
+        return as_stress(getattr(given, "tensor", given))
+    from ..scf import GroundState
+
+    if not isinstance(outcome, GroundState):
+        return None
+    from ..stress import stress_tensor
+
+    return as_stress(stress_tensor(outcome).tensor)
 
 
 def _solve_noting_warnings(solver, cell, settings, warm):
@@ -455,7 +480,9 @@ def scan_volumes(crystal: Crystal, settings: GroundStateSettings | None = None, 
 def _point_line(p: ScanPoint, suffix: str) -> str:
     q = "" if p.c_over_a is None else f"  c/a {p.c_over_a:.4f}"
     state = "" if p.converged else "  NOT converged"
-    return (f"V = {p.volume:10.4f} bohr^3{q}  E = {p.energy:16.8f} Ha  "
+    pressure = ("P      (none)" if p.pressure is None
+                else f"P = {p.pressure * HA_PER_BOHR3_GPA:9.3f} GPa")
+    return (f"V = {p.volume:10.4f} bohr^3{q}  E = {p.energy:16.8f} Ha  {pressure}  "
             f"{p.iterations:3d} iterations {p.seconds:6.1f} s{state}{suffix}")
 
 

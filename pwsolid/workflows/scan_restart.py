@@ -17,7 +17,7 @@ from ..crystal import Crystal
 from ..preflight import load_pseudopotentials
 from ..settings import GroundStateSettings
 from ..store import RecordLog, fingerprint
-from .volume_scan_result import ScanPoint
+from .volume_scan_result import ScanPoint, stress_of_record
 
 __all__ = ["ScanRestart"]
 
@@ -70,7 +70,12 @@ class ScanRestart:
         return self.log.mismatches
 
     def reusable(self, volume: float, c_over_a: float | None, stage: int) -> ScanPoint | None:
-        """The stored point at (volume, c/a) if it converged at least as tightly as asked."""
+        """The stored point at (volume, c/a) if it converged at least as tightly as asked.
+
+        A point stored without a stress (a file written before the scan recorded
+        the pressure) is reused with ``stress = None``: recomputing the stress
+        needs the point's orbitals, that is its whole SCF, so it is left missing.
+        """
         rec = self.log.find(_at(volume, c_over_a))
         if rec is None or not rec.get("converged", False):
             return None
@@ -80,7 +85,8 @@ class ScanRestart:
             return None
         return ScanPoint(volume, c_over_a, float(rec["energy_Ha"]), True,
                          int(rec.get("iterations", 0)), float(rec.get("seconds", 0.0)),
-                         resumed=True, stage=stage, notes=tuple(rec.get("notes", ())))
+                         resumed=True, stage=stage, notes=tuple(rec.get("notes", ())),
+                         stress=stress_of_record(rec))
 
     def add(self, point: ScanPoint) -> None:
         """Write a finished point (replacing a stored one at the same volume and c/a)."""

@@ -4,6 +4,20 @@
 the points, the E(V) curve, every fitted equation of state and their spread, and
 writes the document of schema :data:`EOS_SCAN_SCHEMA` (Ha and eV, bohr and
 angstrom, GPa).
+
+Every computed point carries the analytic stress tensor of its ground state
+(:func:`pwsolid.stress.stress_tensor`, the stress theorem of O. H. Nielsen and
+R. M. Martin, Phys. Rev. B 32, 3780 (1985)) and so the pressure P = -tr(sigma)/3;
+the document sets beside it -dE/dV of the preferred fit at the point's volume and
+the difference. At a fixed cutoff the difference is the basis-set (Pulay) stress,
+which the analytic stress leaves out and the energies of a fixed-cutoff scan
+contain, plus the fit's own error; for a c/a point away from the optimal c/a it
+also holds the first-order change of the energy with c/a (the fit is to the
+relaxed E(V)); with smearing, the fit is to the zero-width energy and the stress
+is the derivative of the free energy F, which adds the smearing's share (small at
+usual widths). Points from an older restart file without a stress keep
+``stress = None``: the stress needs the orbitals, which the file does not keep, so
+it is not recomputed (that would cost the point's whole SCF).
 """
 
 from __future__ import annotations
@@ -20,7 +34,7 @@ from ..settings import GroundStateSettings
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
 from .cell_geometry import cell_kind, lattice_lengths
 
-__all__ = ["ScanPoint", "VolumeScan", "EOS_SCAN_SCHEMA"]
+__all__ = ["ScanPoint", "VolumeScan", "EOS_SCAN_SCHEMA", "stress_of_record", "as_stress"]
 
 EOS_SCAN_SCHEMA = "pwsolid.equation-of-state/1"
 
@@ -49,6 +63,10 @@ class ScanPoint:
         0 for the planned volumes, k for the k-th range extension.
     notes : tuple of str
         Warnings of the SCF at this point.
+    stress : tuple of 3 tuples of 3 floats, or None
+        Analytic stress tensor sigma_ab (Ha/bohr^3) at the fixed plane-wave set,
+        symmetrised; None when the solver gave none (a model solver, or a point
+        from a restart file written before the stress was recorded).
     """
 
     volume: float
@@ -60,16 +78,58 @@ class ScanPoint:
     resumed: bool = False
     stage: int = 0
     notes: tuple[str, ...] = ()
+    stress: tuple[tuple[float, float, float], ...] | None = None
+
+    @property
+    def pressure(self) -> float | None:
+        """P = -tr(sigma)/3 (Ha/bohr^3), positive when the cell wants to expand; or None."""
+        if self.stress is None:
+            return None
+        return -float(np.trace(np.asarray(self.stress))) / 3.0
 
     def as_record(self) -> dict:
         """The JSON record of the point (also the store's entry)."""
+        stress = None if self.stress is None else np.asarray(self.stress, float)
         return {"volume_bohr3": self.volume,
                 "volume_angstrom3": self.volume * BOHR_ANGSTROM ** 3,
                 "c_over_a": self.c_over_a,
                 "energy_Ha": self.energy, "energy_eV": self.energy * HARTREE_EV,
                 "converged": bool(self.converged), "iterations": int(self.iterations),
                 "seconds": float(self.seconds), "reused_from_restart_file": bool(self.resumed),
-                "extension_round": int(self.stage), "notes": list(self.notes)}
+                "extension_round": int(self.stage), "notes": list(self.notes),
+                "pressure_GPa": _gpa(self.pressure),
+                "stress_tensor_GPa": None if stress is None else _gpa(stress).tolist(),
+                "stress_tensor_Ha_per_bohr3": None if stress is None else stress.tolist()}
+
+
+def stress_of_record(rec: dict) -> tuple | None:
+    """The stress (Ha/bohr^3, nested tuples) of a point's record, or None when the
+    record has none (older restart files) or it is not a finite 3 x 3 table."""
+    value = rec.get("stress_tensor_Ha_per_bohr3")
+    if value is None:
+        return None
+    try:
+        t = np.asarray(value, dtype=float)
+    except (TypeError, ValueError):
+        return None
+    if t.shape != (3, 3) or not np.all(np.isfinite(t)):
+        return None
+    return as_stress(t)
+
+
+def as_stress(tensor) -> tuple | None:
+    """A (3, 3) array (Ha/bohr^3) as the nested tuple a ScanPoint keeps; None stays None."""
+    if tensor is None:
+        return None
+    t = np.asarray(tensor, dtype=float).reshape(3, 3)
+    return tuple(tuple(float(x) for x in row) for row in t)
+
+
+def _gpa(x):
+    """Ha/bohr^3 -> GPa (arrays or scalars); None stays None."""
+    if x is None:
+        return None
+    return x * HA_PER_BOHR3_GPA
 
 
 def _finite(x):
@@ -186,6 +246,38 @@ class VolumeScan:
         """Lattice lengths (bohr) at the preferred V0."""
         return self.lattice_at(self.v0)
 
+    # -- pressures ---------------------------------------------------------
+    def pressure_comparison(self) -> dict:
+        """The analytic pressure of every point beside -dE/dV of the preferred fit.
+
+        Returns
+        -------
+        dict
+            ``volumes`` (n,) bohr^3, in the order of :attr:`points`;
+            ``pressures`` (n,) Ha/bohr^3, the analytic P (NaN where a point has no
+            stress); ``fit_pressures`` (n,) Ha/bohr^3, -dE/dV of the preferred fit;
+            ``differences`` (n,) Ha/bohr^3, P - (-dE/dV) (NaN where P is missing);
+            ``largest`` the largest |difference| (None without any pressure) and
+            ``mean`` the mean difference (None likewise).
+
+        Notes
+        -----
+        At a fixed cutoff the mean difference estimates the basis-set (Pulay)
+        pressure with the opposite sign: the fit differentiates energies whose
+        plane-wave set grows with the volume, the analytic stress keeps the set
+        fixed (see the module notes); the scatter about the mean is the fit's error.
+        """
+        volumes = np.array([p.volume for p in self.points], dtype=float)
+        pressures = np.array([np.nan if p.pressure is None else p.pressure
+                              for p in self.points], dtype=float)
+        fit = np.asarray(self.fit.pressure(volumes), dtype=float).reshape(volumes.shape)
+        diff = pressures - fit
+        have = np.isfinite(diff)
+        return {"volumes": volumes, "pressures": pressures, "fit_pressures": fit,
+                "differences": diff,
+                "largest": float(np.max(np.abs(diff[have]))) if have.any() else None,
+                "mean": float(np.mean(diff[have])) if have.any() else None}
+
     # -- document ----------------------------------------------------------
     def as_document(self) -> dict:
         """JSON-ready summary (schema ``EOS_SCAN_SCHEMA``): Ha and eV, bohr and angstrom, GPa."""
@@ -233,6 +325,7 @@ class VolumeScan:
                 "equilibrium_energy_meV": s["e0"]["spread"] * HARTREE_EV * 1e3,
             }
         in_lat = lattice_lengths(self.crystal.lattice)
+        points, pressure_check = self._points_with_pressures()
         return {
             "schema": EOS_SCAN_SCHEMA,
             "scan_kind": "volume and c/a" if self.c_over_a_values else "volume",
@@ -247,7 +340,8 @@ class VolumeScan:
                      "c_over_a_values": (list(self.c_over_a_values)
                                          if self.c_over_a_values else None),
                      "extensions": [dict(e) for e in self.extensions]},
-            "points": [p.as_record() for p in self.points],
+            "points": points,
+            "pressure_check": pressure_check,
             "energy_curve": {
                 "volumes_bohr3": np.asarray(self.volumes).tolist(),
                 "volumes_angstrom3": (np.asarray(self.volumes) * a3).tolist(),
@@ -262,5 +356,31 @@ class VolumeScan:
             "all_points_converged": self.all_points_converged,
             "messages": list(self.messages),
             "units": {"energy": "Ha and eV as suffixed", "volume": "bohr^3 and angstrom^3 "
-                      "as suffixed, per cell unless 'per_atom'", "bulk_modulus": "GPa"},
+                      "as suffixed, per cell unless 'per_atom'", "bulk_modulus": "GPa",
+                      "pressure": "GPa, positive when the cell wants to expand"},
         }
+
+    def _points_with_pressures(self) -> tuple[list[dict], dict]:
+        """The point records with the fit's -dE/dV beside each pressure, and a summary."""
+        cmp = self.pressure_comparison()
+        records = []
+        for p, fit, diff in zip(self.points, cmp["fit_pressures"], cmp["differences"]):
+            rec = p.as_record()
+            rec["fit_pressure_GPa"] = _finite(fit * HA_PER_BOHR3_GPA)
+            rec["pressure_minus_fit_GPa"] = _finite(diff * HA_PER_BOHR3_GPA)
+            records.append(rec)
+        n_with = int(np.sum(np.isfinite(cmp["pressures"])))
+        check = {
+            "form": self.preferred_form,
+            "points_with_pressure": n_with,
+            "points_without_pressure": len(self.points) - n_with,
+            "largest_abs_difference_GPa": _gpa(cmp["largest"]),
+            "mean_difference_GPa": _gpa(cmp["mean"]),
+            "meaning": "pressure is the analytic -trace(stress)/3 at a fixed plane-wave set; "
+                       "fit_pressure is -dE/dV of the preferred fit. Their difference is the "
+                       "basis-set (Pulay) pressure of a fixed cutoff, with the opposite sign "
+                       "(the mean), plus the fit error (the scatter)"
+                       + ("; at c/a values away from the optimum it also holds dE/d(c/a) "
+                          "terms" if self.c_over_a_values else ""),
+        }
+        return records, check

@@ -57,6 +57,13 @@ def test_equation_of_state_command_writes_its_files(tiny, capsys):
     assert len(doc["points"]) == 5 and doc["scan"]["relative_volume_range"] == 0.04
     assert set(doc["fits"]) == {"birch-murnaghan", "vinet", "murnaghan", "polynomial"}
     assert doc["title"] == "Brightfilm quick check"
+    # every point carries its analytic pressure beside the fit's -dE/dV (the numbers are
+    # checked in tests/validation/test_eos_pressure.py)
+    for p in doc["points"]:
+        assert p["pressure_minus_fit_GPa"] == pytest.approx(
+            p["pressure_GPa"] - p["fit_pressure_GPa"], abs=1e-9)
+    assert doc["pressure_check"]["points_with_pressure"] == 5
+    assert "pressure at each point" in out.out
 
 
 def test_equation_of_state_resumes_from_its_restart_file(tiny, capsys):

@@ -17,7 +17,7 @@ import pytest
 from conftest import LOCAL_SILICON
 from pwsolid.crystal import (body_centred_cubic, diamond, face_centred_cubic,
                              hexagonal_close_packed, rocksalt, simple_cubic)
-from pwsolid.eos import birch_murnaghan_energy
+from pwsolid.eos import birch_murnaghan_energy, birch_murnaghan_pressure
 from pwsolid.errors import ConvergenceWarning, InputError
 from pwsolid.settings import GroundStateSettings
 from pwsolid.units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
@@ -300,6 +300,80 @@ def test_document_is_json_with_units_at_the_edges():
             "iterations", "seconds"} <= set(p)
     assert doc["spread_between_forms"]["forms"] == list(scan.fits)
     assert doc["crystal"]["cell_kind"] == "fcc"
+
+
+class StressedModelSolver(ModelSolver):
+    """The model energy with its exact stress: sigma = -P(V) 1, P = -dE/dV of the same
+    Birch-Murnaghan form (F. Birch, Phys. Rev. 71, 809 (1947)), and a small shear so
+    that the tensor is seen to travel whole."""
+
+    def __call__(self, crystal, settings, warm_start):
+        out = super().__call__(crystal, settings, warm_start)
+        p = birch_murnaghan_pressure(crystal.volume, self.v0, self.b0, self.b0p)
+        out.stress = -float(p) * np.eye(3) + 1e-5 * np.array([[0, 1, 0], [1, 0, 0], [0, 0, 0]])
+        return out
+
+
+def test_document_sets_each_pressure_beside_the_fits_minus_dE_dV(tmp_path):
+    si = diamond(_a_for_volume(V0), "Si")
+    lines = []
+    scan = scan_volumes(si, SETTINGS, solver=StressedModelSolver(), log=lines.append)
+    doc = json.loads(json.dumps(scan.as_document(), allow_nan=False))
+    assert all(" GPa" in line and "P = " in line for line in lines)   # the screen line
+    for p, point in zip(doc["points"], scan.points):
+        exact = birch_murnaghan_pressure(point.volume, V0, B0, B0P) * HA_PER_BOHR3_GPA
+        assert p["pressure_GPa"] == pytest.approx(exact, rel=1e-12)
+        assert np.array(p["stress_tensor_GPa"]) == pytest.approx(
+            np.array(p["stress_tensor_Ha_per_bohr3"]) * HA_PER_BOHR3_GPA, rel=1e-12)
+        assert p["stress_tensor_Ha_per_bohr3"][0][1] == pytest.approx(1e-5)
+        # the fit of exact Birch-Murnaghan energies returns the model (to ~1e-7 in its
+        # parameters, as in the first test): its -dE/dV agrees to 1e-4 GPa of ~10 GPa
+        assert p["fit_pressure_GPa"] == pytest.approx(exact, abs=1e-4)
+        assert p["pressure_minus_fit_GPa"] == pytest.approx(
+            p["pressure_GPa"] - p["fit_pressure_GPa"], abs=1e-12)
+    check = doc["pressure_check"]
+    assert check["points_with_pressure"] == 7 and check["points_without_pressure"] == 0
+    assert check["form"] == "birch-murnaghan" and check["largest_abs_difference_GPa"] < 1e-4
+    cmp = scan.pressure_comparison()
+    assert cmp["largest"] * HA_PER_BOHR3_GPA == pytest.approx(
+        check["largest_abs_difference_GPa"], rel=1e-12)
+
+
+def test_a_stored_point_keeps_its_pressure_and_an_older_one_loads_without(tmp_path):
+    si = diamond(_a_for_volume(V0), "Si")
+    store = tmp_path / "points.json"
+    first = scan_volumes(si, SETTINGS, solver=StressedModelSolver(), store=store)
+    never = ModelSolver(fail_after=0)         # any computation would raise
+    again = scan_volumes(si, SETTINGS, solver=never, store=store)
+    assert all(p.resumed for p in again.points)
+    for a, b in zip(first.points, again.points):
+        assert b.stress == a.stress and b.pressure == a.pressure is not None
+    # a restart file written before the pressure was recorded: its points still load,
+    # without a pressure (not recomputed: that needs the point's SCF)
+    from pwsolid.workflows.scan_restart import ScanRestart
+
+    old_store = tmp_path / "older-points.json"
+    log = ScanRestart(old_store, si, SETTINGS).log
+    for point in first.points:
+        rec = {k: v for k, v in point.as_record().items()
+               if k not in ("pressure_GPa", "stress_tensor_GPa", "stress_tensor_Ha_per_bohr3",
+                            "reused_from_restart_file")}
+        log.add({**rec, "energy_tolerance_Ha": SETTINGS.energy_tolerance,
+                 "density_tolerance": SETTINGS.density_tolerance})
+    older = scan_volumes(si, SETTINGS, solver=ModelSolver(fail_after=0), store=old_store)
+    assert all(p.resumed and p.pressure is None for p in older.points)
+    doc = json.loads(json.dumps(older.as_document(), allow_nan=False))
+    assert all(p["pressure_GPa"] is None and p["pressure_minus_fit_GPa"] is None
+               and p["fit_pressure_GPa"] is not None for p in doc["points"])
+    assert doc["pressure_check"]["points_without_pressure"] == 7
+    assert doc["pressure_check"]["largest_abs_difference_GPa"] is None
+    # a figure without pressures draws no pressure panel; with them it does
+    from pwsolid.plots.eos import EquationOfStatePlot
+    assert "pressure" not in EquationOfStatePlot.from_scan(older).panels
+    plot = EquationOfStatePlot.from_scan(first)
+    assert plot.panels == ("energy", "pressure", "residuals")
+    plot.save(tmp_path / "eos", formats=("png",))
+    assert (tmp_path / "eos.png").stat().st_size > 1000
 
 
 def test_scan_point_record_round_trip():

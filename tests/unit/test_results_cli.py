@@ -49,6 +49,21 @@ def test_ground_state_command_writes_a_complete_document(small_input, capsys):
     assert doc["input"]["basis"]["cutoff"] == "5 Ha"
     dens = load_density(small_input.parent / "quick.density.npz")
     assert list(dens["density"].shape) == doc["basis"]["fft_grid"]
+    # forces and stress by default: ideal diamond has zero forces by symmetry (site
+    # symmetry -43m), a cubic crystal an isotropic stress; pressure = -trace/3
+    forces, stress = doc["forces"], doc["stress"]
+    assert len(forces["atoms"]) == 2 and forces["largest_force_Ha_per_bohr"] < 1e-10
+    assert "largest force" in out and "pressure" in out
+    tensor = np.array(stress["tensor_GPa"])
+    np.testing.assert_allclose(tensor, tensor[0, 0] * np.eye(3), atol=1e-8)
+    assert stress["pressure_GPa"] == pytest.approx(-np.trace(tensor) / 3)
+
+
+def test_energy_only_skips_forces_and_stress(small_input, capsys):
+    assert main(["ground-state", str(small_input), "--quiet", "--energy-only"]) == EXIT_OK
+    doc = json.loads((small_input.parent / "quick.result.json").read_text())
+    assert doc["forces"] is None and doc["stress"] is None
+    assert "largest force" not in capsys.readouterr().out
 
 
 def test_not_converged_exit_code(small_input, capsys):
