@@ -22,7 +22,6 @@ steps or the cell collapsed (the documents are still written, with
 
 from __future__ import annotations
 
-import io
 import json
 import sys
 from pathlib import Path
@@ -179,27 +178,23 @@ def relaxed_input_text(run_input, crystal, converged: bool, source="") -> str:
 # -- the relaxed structure as a CIF file (optional: needs ASE) ---------------------------
 
 def write_cif(path, crystal) -> str | None:
-    """Write ``crystal`` as a CIF file (atomically) through ASE's writer, if installed.
+    """Write ``crystal`` as a CIF file (atomically) with
+    :func:`pwsolid.interop.ase_structures.write_structure`, when ASE is installed.
 
     The cell goes in angstrom, the positions fractional, in space group P 1 (the
-    relaxed structure as it is; no symmetry is searched for). ASE is an optional
-    dependency, imported here only.
+    relaxed structure as it is; no symmetry is searched for).
 
     Returns
     -------
     str or None
         None when written; otherwise a one-line note saying why it was skipped.
     """
-    try:
-        import ase
-        import ase.io
-    except ImportError:
-        return "Note: no CIF file written (the optional ASE library is not installed)"
-    from ..safe_files import atomic_write_bytes
+    from ..interop import MissingExtraError
+    from ..interop.ase_structures import write_structure
 
-    atoms = ase.Atoms(list(crystal.species), scaled_positions=crystal.positions,
-                      cell=crystal.lattice * BOHR_ANGSTROM, pbc=True)
-    buf = io.BytesIO()
-    ase.io.write(buf, atoms, format="cif")
-    atomic_write_bytes(path, buf.getvalue())
+    try:
+        write_structure(path, crystal, file_format="cif")
+    except MissingExtraError:
+        return ('Note: no CIF file written (the optional ASE library is not installed: '
+                'pip install "pwsolid[ase]")')
     return None
