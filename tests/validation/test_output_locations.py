@@ -75,6 +75,8 @@ UNDER_A_FILE = "a-file.txt/sub/out.json"
 
 # (command id, argv builder taking (input path, bad location))
 FILE_OPTIONS = [
+    ("relax-structure --checkpoint-file",
+     lambda i, p: ["relax-structure", i, "--checkpoint-file", p]),
     ("ground-state --result-file", lambda i, p: ["ground-state", i, "--result-file", p]),
     ("ground-state --density-file", lambda i, p: ["ground-state", i, "--density-file", p]),
     ("ground-state --checkpoint-file",
@@ -86,6 +88,7 @@ FILE_OPTIONS = [
                    p]),
 ]
 DIRECTORY_OPTIONS = [
+    ("relax-structure", lambda i, p: ["relax-structure", i, "--output-dir", p]),
     ("equation-of-state", lambda i, p: ["equation-of-state", i, "--output-dir", p]),
     ("converge-settings", lambda i, p: ["converge-settings", i, "--output-dir", p]),
     ("compare-structures",
