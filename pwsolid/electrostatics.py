@@ -241,54 +241,20 @@ def ewald_stress(lattice: np.ndarray, positions: np.ndarray, charges: np.ndarray
     O. H. Nielsen and R. M. Martin, Phys. Rev. B 32, 3780 (1985), Appendix (Ewald
     stress); P. P. Ewald, Ann. Phys. 369, 253 (1921).
     """
-    lattice = np.asarray(lattice, float)
-    pos = np.asarray(positions, float).reshape(-1, 3)
-    q = np.asarray(charges, float).reshape(-1)
-    volume = abs(np.linalg.det(lattice))
-    eta = splitting if splitting is not None else math.sqrt(math.pi) / volume ** (1 / 3)
+    sums = _ewald_sums(lattice, positions, charges, tolerance, splitting)
+    q, eta, volume, g = sums.charges, sums.eta, sums.volume, sums.g
     out = np.zeros((3, 3))
-    diffs, cells = _real_space_images(lattice, pos, eta, tolerance)
     qq = q[:, None] * q[None, :]
-    for chunk in np.array_split(cells, max(1, len(cells) // 2000 + 1)):
-        x = diffs[:, :, None, :] + chunk[None, None, :, :]
-        d = np.linalg.norm(x, axis=-1)
-        mask = d > 1e-10
-        ds = np.where(mask, d, 1.0)
+    for x, ds, mask in sums.real_space_pairs():
         slope = (-erfc(eta * ds) / ds ** 2
                  - 2 * eta / math.sqrt(math.pi) * np.exp(-(eta * ds) ** 2) / ds)
         weight = np.where(mask, 0.5 * qq[:, :, None] * slope / ds, 0.0)
         out += np.einsum("ijl,ijla,ijlb->ab", weight, x, x)
 
-    g, g2 = _reciprocal_vectors(lattice, eta, tolerance)
-    term = (2 * np.pi / volume * np.exp(-g2 / (4 * eta * eta)) / g2
-            * np.abs(np.exp(1j * g @ pos.T) @ q) ** 2)
+    g2 = np.einsum("ij,ij->i", g, g)
+    term = (2 * np.pi / volume * sums.screened_coulomb
+            * np.abs(np.exp(1j * g @ sums.positions.T) @ q) ** 2)
     out += np.einsum("g,ga,gb->ab", term * 2 * (1 / (4 * eta * eta) + 1 / g2), g, g)
     out -= float(np.sum(term)) * np.eye(3)
     out += math.pi * float(np.sum(q)) ** 2 / (2 * volume * eta * eta) * np.eye(3)
     return out / volume
-
-
-def _real_space_images(lattice: np.ndarray, pos: np.ndarray, eta: float, tolerance: float):
-    """Pair differences (n, n, 3) and lattice translations (n_cells, 3) for the real-space
-    Ewald series: every erfc(eta r)/r above ``tolerance`` is covered."""
-    r_max = math.sqrt(-math.log(tolerance)) / eta
-    while erfc(eta * r_max) / r_max > tolerance:
-        r_max *= 1.1
-    diffs = pos[:, None, :] - pos[None, :, :]
-    span = np.max(np.linalg.norm(diffs, axis=-1)) if len(pos) > 1 else 0.0
-    n_l = _lattice_range(lattice, r_max + span)
-    cells = np.array(list(itertools.product(*(range(-n, n + 1) for n in n_l))), float) @ lattice
-    return diffs, cells
-
-
-def _reciprocal_vectors(lattice: np.ndarray, eta: float, tolerance: float):
-    """Nonzero G (n_G, 3) and G^2 of the reciprocal Ewald series, where
-    exp(-G^2/4eta^2) exceeds ``tolerance``."""
-    recip = 2 * np.pi * np.linalg.inv(lattice).T
-    g_max = 2 * eta * math.sqrt(-math.log(tolerance))
-    n_g = _lattice_range(recip, g_max)
-    m = np.array(list(itertools.product(*(range(-n, n + 1) for n in n_g))), float)
-    g = m @ recip
-    g2 = np.einsum("ij,ij->i", g, g)
-    keep = (g2 > 1e-12) & (g2 <= g_max * g_max)
-    return g[keep], g2[keep]

@@ -18,7 +18,7 @@ import numpy as np
 from ._version import __version__
 from .safe_files import atomic_write_bytes
 from .scf import GroundState
-from .store import RESULT_SCHEMA, load_density, save_density
+from .store import RESULT_SCHEMA, load_density, plain_value, save_density
 from .units import BOHR_ANGSTROM, HARTREE_EV
 
 __all__ = ["RESULT_SCHEMA", "ground_state_document", "write_json",
@@ -170,15 +170,5 @@ def _occupation_block(gs: GroundState) -> dict:
 
 def write_json(path, document: dict) -> None:
     """Write a JSON document atomically (NaN and infinities refused)."""
-    text = json.dumps(document, indent=2, allow_nan=False, default=_json_default)
+    text = json.dumps(document, indent=2, allow_nan=False, default=plain_value)
     atomic_write_bytes(path, (text + "\n").encode())
-
-
-def _json_default(obj):
-    if isinstance(obj, np.generic):
-        return obj.item()
-    if isinstance(obj, np.ndarray):
-        return obj.tolist()
-    if isinstance(obj, Path):
-        return str(obj)
-    raise TypeError(f"cannot store {type(obj).__name__} in JSON")

@@ -53,7 +53,7 @@ import numpy as np
 from .errors import InputError
 from .safe_files import array_checksum, atomic_write_bytes
 
-__all__ = ["RESULT_SCHEMA", "RecordKind", "RECORD_KINDS", "register_kind", "IdentityField",
+__all__ = ["RESULT_SCHEMA", "plain_value", "RecordKind", "RECORD_KINDS", "register_kind", "IdentityField",
            "IDENTITY_FIELDS", "PATH_ONLY_SETTINGS", "Fingerprint", "fingerprint",
            "setup_fingerprint", "StoredRecord", "save_record", "load_record", "RecordLog",
            "save_checkpoint", "load_checkpoint", "save_density", "load_density"]
@@ -304,17 +304,19 @@ def _canonical(value) -> bytes:
 
 
 def _json_ready(value):
-    return json.loads(json.dumps(value, default=_plain))
+    return json.loads(json.dumps(value, default=plain_value))
 
 
-def _plain(obj):
+def plain_value(obj):
+    """JSON form of the numpy scalars, arrays and paths in documents and records
+    (``json.dumps(..., default=plain_value)``); anything else is refused."""
     if isinstance(obj, np.generic):
         return obj.item()
     if isinstance(obj, np.ndarray):
         return obj.tolist()
     if isinstance(obj, Path):
         return str(obj)
-    raise TypeError(f"cannot store {type(obj).__name__} in a record")
+    raise TypeError(f"cannot store {type(obj).__name__} in JSON")
 
 
 # --- header checks shared by both containers ------------------------------------------
