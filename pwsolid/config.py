@@ -788,6 +788,18 @@ class _Reader:
             folder = self.base_dir.resolve()
         except OSError:
             return self.base_dir
-        if folder == examples or examples in folder.parents:
+        if folder == examples or examples in folder.parents or self._is_bundled_example():
             return Path.cwd()
         return self.base_dir
+
+    def _is_bundled_example(self) -> bool:
+        """An input identical to a bundled example of the same name (e.g. the repository's
+        own inputs/ folder beside an installed copy of the package)."""
+        if not self.source:
+            return False
+        source = Path(self.source)
+        twin = inputs_dir() / source.name
+        try:
+            return twin.is_file() and twin.read_bytes() == source.read_bytes()
+        except OSError:
+            return False

@@ -381,6 +381,15 @@ def test_bundled_examples_write_to_the_working_directory(tmp_path, monkeypatch):
     run = load_input(inputs_dir() / "silicon-substrate.toml")
     for path in (run.result_file, run.density_file, run.checkpoint_file):
         assert path.parent == tmp_path
+    # a copy of the examples outside the package (a checkout's inputs/ folder beside an
+    # installed, non-editable package) is recognised by its contents
+    checkout = tmp_path / "checkout" / "inputs"
+    checkout.mkdir(parents=True)
+    copy = checkout / "silicon-substrate.toml"
+    copy.write_bytes((inputs_dir() / "silicon-substrate.toml").read_bytes())
+    assert load_input(copy).result_file.parent == tmp_path
+    copy.write_text(copy.read_text() + "\n# my own change\n")
+    assert load_input(copy).result_file.parent == checkout
 
 
 # -- command-line options named in their messages (issue 15) -------------------------------
