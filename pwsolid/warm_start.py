@@ -12,7 +12,9 @@ convergence studies, and later relaxations and the ASE calculator.
   up to two further neighbours; :func:`transfer_density` moves a density to a
   homogeneously deformed cell, :func:`extrapolate_density` extrapolates it in
   volume, and :func:`starting_point` turns a chain into the SCF's starting
-  density, orbitals and expected residual.
+  density, orbitals and expected residual; when the atoms moved it adds the
+  change of a superposition of atomic densities (:func:`moved_atoms_density`,
+  forms from :func:`atomic_density_forms`).
 """
 
 from __future__ import annotations
@@ -24,9 +26,11 @@ from typing import Any
 import numpy as np
 
 from .basis import transfer_coefficients
+from .hamiltonian import superposed_density
 
 __all__ = ["WavefunctionStart", "start_wavefunctions", "WarmStart", "transfer_density",
-           "extrapolate_density", "starting_point", "wavefunction_start_of"]
+           "extrapolate_density", "starting_point", "wavefunction_start_of",
+           "RadialFormFactor", "atomic_density_forms", "moved_atoms_density"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -126,12 +130,16 @@ class WarmStart:
         which may have a partner in turn: the starting density is then
         extrapolated in volume from up to three points, the orbitals from two
         (see :func:`extrapolate_density`).
+    crystal : pwsolid.crystal.Crystal or None
+        That point's structure, when known: a start for the same cell with moved
+        atoms then adds the change of the atomic densities (:func:`starting_point`).
     """
 
     density: np.ndarray
     volume: float
     wavefunctions: Any = None
     partner: "WarmStart | None" = None
+    crystal: Any = None
 
     @classmethod
     def of(cls, result, partner: "WarmStart | None" = None) -> "WarmStart":
@@ -280,18 +288,27 @@ def _extrapolated_orbitals(start: WarmStart, new_volume: float):
     return start.wavefunctions.extrapolated([(weights[1], chain[1].wavefunctions)])
 
 
-def starting_point(warm: WarmStart | None, grid_shape, volume: float):
+def starting_point(warm: WarmStart | None, grid_shape, volume: float, crystal=None,
+                   atomic_forms: dict | None = None):
     """(density, orbitals, expected residual) to start a cell of ``volume`` (bohr^3)
     and FFT grid ``grid_shape`` from a chain of finished neighbours.
 
     The density is extrapolated (:func:`extrapolate_density`), the orbitals
     linearly when two neighbours have them; the expected residual (None for a
     single neighbour) sets the first eigensolver tolerance of the SCF. All None
-    without a neighbour.
+    without a neighbour. With the new structure ``crystal`` and ``atomic_forms``
+    (species -> form factor of its atomic density, :func:`atomic_density_forms`),
+    and a neighbour that knows its own structure (``warm.crystal``, same species),
+    the density also follows the moved atoms (:func:`moved_atoms_density`).
     """
     if warm is None:
         return None, None, None
     density, expected = _extrapolation(warm, grid_shape, volume)
+    old = warm.crystal
+    if (crystal is not None and atomic_forms is not None and old is not None
+            and list(old.species) == list(crystal.species)):
+        density = moved_atoms_density(density, crystal.lattice, old.positions,
+                                      crystal.positions, crystal.species, atomic_forms)
     waves = _extrapolated_orbitals(warm, volume)
     if expected is not None:
         expected *= _START_RESIDUAL_PER_ESTIMATE
@@ -305,3 +322,90 @@ def wavefunction_start_of(outcome) -> WavefunctionStart | None:
             getattr(outcome, "wavefunctions", None) is not None:
         return WavefunctionStart.of(outcome)
     return None
+
+
+@dataclass(frozen=True, eq=False)
+class RadialFormFactor:
+    """Fourier transform of a spherical density, tabulated: ``form_factor(q)``
+    interpolates ``values`` (electrons) linearly in ``q`` (1/bohr, ascending) and
+    is 0 beyond the table."""
+
+    q: np.ndarray
+    values: np.ndarray
+
+    @classmethod
+    def of(cls, r: np.ndarray, weights: np.ndarray, density: np.ndarray,
+           q_max: float = 20.0, n_q: int = 2001) -> "RadialFormFactor":
+        """n(q) = 4 pi int r^2 n(r) sin(qr)/(qr) dr on a radial quadrature (``r``,
+        ``weights``, bohr) of a density ``n(r)`` (bohr^-3), tabulated to ``q_max``."""
+        q = np.linspace(0.0, q_max, n_q)
+        kernel = np.sinc(np.outer(q, r) / np.pi)
+        return cls(q, 4 * np.pi * kernel @ (weights * r ** 2 * density))
+
+    def form_factor(self, q: np.ndarray) -> np.ndarray:
+        return np.interp(q, self.q, self.values, right=0.0)
+
+
+def atomic_density_forms(pseudopotentials: dict, model: str = "pseudo-atom") -> dict:
+    """Form factors of each species' free-atom valence density (electrons).
+
+    ``model="pseudo-atom"``: the density of the neutral pseudo-atom
+    (:func:`pwsolid.pseudo.atom.solve_pseudo_atom`, LDA, its ground configuration);
+    ``"gaussian"``: a normalised Gaussian of the valence charge, 1 bohr wide (a
+    cheaper model). ``pseudopotentials`` maps species to loaded pseudopotentials.
+    """
+    from .pseudo.atom import radial_basis, solve_pseudo_atom
+    from .pseudo.core import PartialCore
+
+    if model == "gaussian":
+        return {s: PartialCore(float(pp.valence), 1.0) for s, pp in pseudopotentials.items()}
+    basis = radial_basis()
+    forms = {}
+    for s, pp in pseudopotentials.items():
+        atom = solve_pseudo_atom(pp, basis=basis)
+        forms[s] = RadialFormFactor.of(basis.points, basis.weights, atom.density)
+    return forms
+
+
+def moved_atoms_density(density: np.ndarray, lattice: np.ndarray, old_positions: np.ndarray,
+                        new_positions: np.ndarray, species, forms: dict) -> np.ndarray:
+    """A self-consistent density carried along with moved atoms (bohr^-3).
+
+    Parameters
+    ----------
+    density : ndarray (n1, n2, n3) or (n_spin, n1, n2, n3) float64, bohr^-3
+        Self-consistent density of the atoms at ``old_positions``.
+    lattice : (3, 3) bohr
+        The new cell (the density already carried to it at fixed fractional
+        coordinates, as :func:`transfer_density` does).
+    old_positions, new_positions : (n_atoms, 3) fractional
+    species : sequence of str
+    forms : mapping species -> ``form_factor(q)`` of its atomic density
+
+    Returns
+    -------
+    ndarray, the shape of ``density``, float64
+        n + N[R_new] - N[R_old], N the superposition of atomic densities
+        (:func:`pwsolid.hamiltonian.superposed_density`); spin channels take half
+        the change each. Negative values are clipped and the charge restored.
+
+    Notes
+    -----
+    The first-order density extrapolation for moving atoms: the part of the density
+    that the atoms carry rigidly follows them, the bonding rearrangement
+    n - N[R_old] is kept.
+
+    References
+    ----------
+    D. Alfe, Comput. Phys. Commun. 118, 31 (1999) (from memory).
+    """
+    density = np.asarray(density, float)
+    shape = density.shape[-3:]
+    change = (superposed_density(lattice, new_positions, species, forms, shape)
+              - superposed_density(lattice, old_positions, species, forms, shape))
+    if density.ndim == 4:
+        change = change / density.shape[0]
+    moved = np.maximum(density + change, 0.0)
+    axes = (-3, -2, -1)
+    return moved * (density.mean(axis=axes, keepdims=True)
+                    / moved.mean(axis=axes, keepdims=True))

@@ -18,7 +18,10 @@ import numpy as np
 from ..crystal import Crystal
 from ..settings import GroundStateSettings
 from ..units import HA_PER_BOHR3_GPA
-from ..warm_start import WarmStart, starting_point, wavefunction_start_of
+from ..warm_start import WarmStart, atomic_density_forms, starting_point, wavefunction_start_of
+
+import os
+ATOMIC_MODEL = os.environ.get("PWS_ATOMIC", "pseudo-atom")
 
 __all__ = ["Evaluation", "Evaluator", "scf_evaluator", "warm_start_of"]
 
@@ -72,15 +75,16 @@ def warm_start_of(previous) -> WarmStart | None:
         return None
     density = gs.density if gs.spin_densities is None else gs.spin_densities
     return WarmStart(np.asarray(density, float), float(gs.crystal.volume),
-                     wavefunction_start_of(gs))
+                     wavefunction_start_of(gs), crystal=gs.crystal)
 
 
-def _warm_start(previous, crystal: Crystal, setup):
+def _warm_start(previous, crystal: Crystal, setup, forms=None):
     """(density, orbitals) to start this cell's SCF from the previous step's; (None, None)
     without one. The density keeps its fractional-coordinate values (times V_old / V_new),
-    carried by :func:`pwsolid.warm_start.starting_point` from one neighbour."""
+    carried by :func:`pwsolid.warm_start.starting_point` from one neighbour, plus the change
+    of the superposed atomic densities (``forms``) where the atoms moved."""
     density, waves, _ = starting_point(warm_start_of(previous), setup.grid_shape,
-                                       crystal.volume)
+                                       crystal.volume, crystal, forms)
     return density, waves
 
 
@@ -199,7 +203,10 @@ def scf_evaluator(settings: GroundStateSettings, *, symmetrize: bool = True,
     def evaluate(crystal: Crystal, previous) -> Evaluation:
         step_settings, loose = _step_settings(settings, memory, force_threshold)
         setup = prepare(crystal, step_settings)
-        density, waves = _warm_start(previous if warm else None, crystal, setup)
+        if warm and "forms" not in memory and ATOMIC_MODEL != "none":
+            memory["forms"] = atomic_density_forms(setup.pseudopotentials, ATOMIC_MODEL)
+        density, waves = _warm_start(previous if warm else None, crystal, setup,
+                                     memory.get("forms"))
         expected = _expected_start_residual(memory, previous, crystal) if warm else None
         gs = ground_state(crystal, settings, setup=setup, log=log, initial_density=density,
                           initial_wavefunctions=waves, start_residual=expected)
