@@ -133,6 +133,10 @@ class WarmStart:
     crystal : pwsolid.crystal.Crystal or None
         That point's structure, when known: a start for the same cell with moved
         atoms then adds the change of the atomic densities (:func:`starting_point`).
+    earlier : WarmStart or None
+        The point this one was started from (with its ``crystal``), when known: the
+        moved-atoms start then also extrapolates the change of the bonding density
+        (:func:`moved_atoms_density`).
     """
 
     density: np.ndarray
@@ -140,6 +144,7 @@ class WarmStart:
     wavefunctions: Any = None
     partner: "WarmStart | None" = None
     crystal: Any = None
+    earlier: "WarmStart | None" = None
 
     @classmethod
     def of(cls, result, partner: "WarmStart | None" = None) -> "WarmStart":
@@ -307,8 +312,15 @@ def starting_point(warm: WarmStart | None, grid_shape, volume: float, crystal=No
     old = warm.crystal
     if (crystal is not None and atomic_forms is not None and old is not None
             and list(old.species) == list(crystal.species)):
-        density = moved_atoms_density(density, crystal.lattice, old.positions,
-                                      crystal.positions, crystal.species, atomic_forms)
+        before = warm.earlier
+        if before is not None and (before.crystal is None
+                                   or list(before.crystal.species) != list(crystal.species)):
+            before = None
+        density = moved_atoms_density(
+            density, crystal.lattice, old.positions, crystal.positions, crystal.species,
+            atomic_forms, earlier=None if before is None else (
+                transfer_density(before.density, before.volume, grid_shape, volume),
+                before.crystal.positions))
     waves = _extrapolated_orbitals(warm, volume)
     if expected is not None:
         expected *= _START_RESIDUAL_PER_ESTIMATE
@@ -368,7 +380,8 @@ def atomic_density_forms(pseudopotentials: dict, model: str = "pseudo-atom") -> 
 
 
 def moved_atoms_density(density: np.ndarray, lattice: np.ndarray, old_positions: np.ndarray,
-                        new_positions: np.ndarray, species, forms: dict) -> np.ndarray:
+                        new_positions: np.ndarray, species, forms: dict,
+                        earlier=None) -> np.ndarray:
     """A self-consistent density carried along with moved atoms (bohr^-3).
 
     Parameters
@@ -381,6 +394,10 @@ def moved_atoms_density(density: np.ndarray, lattice: np.ndarray, old_positions:
     old_positions, new_positions : (n_atoms, 3) fractional
     species : sequence of str
     forms : mapping species -> ``form_factor(q)`` of its atomic density
+    earlier : (density, positions) or None
+        The self-consistent density (same grid and cell) and fractional positions of
+        the structure before ``old_positions``: the bonding part is then extrapolated
+        too, with the alpha that best continues the last move of the atoms.
 
     Returns
     -------
@@ -393,7 +410,11 @@ def moved_atoms_density(density: np.ndarray, lattice: np.ndarray, old_positions:
     -----
     The first-order density extrapolation for moving atoms: the part of the density
     that the atoms carry rigidly follows them, the bonding rearrangement
-    n - N[R_old] is kept.
+    b = n - N[R_old] is kept. With an earlier structure,
+    b_new = b + alpha (b - b_earlier), alpha = <dR, dR_1> / <dR_1, dR_1> minimising
+    |dR - alpha dR_1| for the new move dR = R_new - R_old and the last one
+    dR_1 = R_old - R_earlier (Cartesian, nearest image); alpha is kept within [0, 1]
+    (spin densities use the first-order form).
 
     References
     ----------
@@ -401,11 +422,31 @@ def moved_atoms_density(density: np.ndarray, lattice: np.ndarray, old_positions:
     """
     density = np.asarray(density, float)
     shape = density.shape[-3:]
-    change = (superposed_density(lattice, new_positions, species, forms, shape)
-              - superposed_density(lattice, old_positions, species, forms, shape))
+    at_old = superposed_density(lattice, old_positions, species, forms, shape)
+    change = superposed_density(lattice, new_positions, species, forms, shape) - at_old
+    if earlier is not None and density.ndim == 3:
+        alpha = _continuation(lattice, earlier[1], old_positions, new_positions)
+        if alpha > 0:
+            before = np.asarray(earlier[0], float) - superposed_density(
+                lattice, earlier[1], species, forms, shape)
+            change = change + alpha * (density - at_old - before)
     if density.ndim == 4:
         change = change / density.shape[0]
     moved = np.maximum(density + change, 0.0)
     axes = (-3, -2, -1)
     return moved * (density.mean(axis=axes, keepdims=True)
                     / moved.mean(axis=axes, keepdims=True))
+
+
+def _continuation(lattice, earlier, old, new) -> float:
+    """alpha in [0, 1] minimising |(new - old) - alpha (old - earlier)| (Cartesian, nearest
+    image of every atom); 0 when the last move was zero."""
+    def move(a, b):
+        d = np.asarray(b, float) - np.asarray(a, float)
+        return (d - np.rint(d)) @ np.asarray(lattice, float)
+
+    last, step = move(earlier, old), move(old, new)
+    norm = float(np.sum(last * last))
+    if norm == 0.0:
+        return 0.0
+    return float(np.clip(np.sum(step * last) / norm, 0.0, 1.0))

@@ -138,3 +138,25 @@ def test_pseudo_atom_form_factor_holds_the_valence_charge():
     # the radial quadrature integrates the density to about 1e-9 (the solver tolerance)
     assert ff[0] == pytest.approx(4.0, rel=1e-7)
     assert abs(ff[1]) < 4.0 and ff[2] == 0.0
+
+
+def test_bonding_density_is_extrapolated_along_the_atoms_path():
+    # atoms moving in equal steps R_k = R_0 + k d with a density N[R_k] + k D (a bonding
+    # part changing linearly along the path): the continuation coefficient is exactly 1
+    # and the start from the last two points is exact at the third (Lagrange, linear);
+    # a step half as long gets alpha = 1/2, again exact for this linear model
+    species = ["Si", "Si"]
+    d = np.array([[0.01, -0.02, 0.005], [-0.015, 0.01, 0.02]])
+    x = np.arange(GRID[0]) / GRID[0]
+    # zero mean (the charge is fixed), and small enough that no density goes negative
+    bond = (1e-4 * np.sin(2 * np.pi * x))[:, None, None] * np.ones(GRID)
+
+    def density(k, step=1.0):
+        return superposed_density(LATTICE, POSITIONS + k * step * d, species, GAUSS, GRID) + k * bond
+
+    for step in (1.0, 0.5):
+        new = POSITIONS + (1 + step) * d
+        out = moved_atoms_density(density(1), LATTICE, POSITIONS + d, new, species, GAUSS,
+                                  earlier=(density(0), POSITIONS))
+        exact = superposed_density(LATTICE, new, species, GAUSS, GRID) + (1 + step) * bond
+        assert np.allclose(out, exact, rtol=0, atol=1e-12 * exact.max())
