@@ -20,12 +20,14 @@ convergence studies, and later relaxations and the ASE calculator.
 from __future__ import annotations
 
 import dataclasses
+import warnings
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from .basis import transfer_coefficients
+from .errors import InputError
 from .hamiltonian import superposed_density
 
 __all__ = ["WavefunctionStart", "start_wavefunctions", "WarmStart", "transfer_density",
@@ -347,7 +349,7 @@ class RadialFormFactor:
 
     @classmethod
     def of(cls, r: np.ndarray, weights: np.ndarray, density: np.ndarray,
-           q_max: float = 20.0, n_q: int = 2001) -> "RadialFormFactor":
+           q_max: float = 40.0, n_q: int = 4001) -> "RadialFormFactor":
         """n(q) = 4 pi int r^2 n(r) sin(qr)/(qr) dr on a radial quadrature (``r``,
         ``weights``, bohr) of a density ``n(r)`` (bohr^-3), tabulated to ``q_max``."""
         q = np.linspace(0.0, q_max, n_q)
@@ -365,6 +367,8 @@ def atomic_density_forms(pseudopotentials: dict, model: str = "pseudo-atom") -> 
     (:func:`pwsolid.pseudo.atom.solve_pseudo_atom`, LDA, its ground configuration);
     ``"gaussian"``: a normalised Gaussian of the valence charge, 1 bohr wide (a
     cheaper model). ``pseudopotentials`` maps species to loaded pseudopotentials.
+    None when a species' pseudo-atom cannot be solved (no default configuration,
+    no convergence): a start without the moved-atoms term is still a good start.
     """
     from .pseudo.atom import radial_basis, solve_pseudo_atom
     from .pseudo.core import PartialCore
@@ -374,7 +378,14 @@ def atomic_density_forms(pseudopotentials: dict, model: str = "pseudo-atom") -> 
     basis = radial_basis()
     forms = {}
     for s, pp in pseudopotentials.items():
-        atom = solve_pseudo_atom(pp, basis=basis)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                atom = solve_pseudo_atom(pp, basis=basis)
+            except (InputError, ValueError, ArithmeticError, np.linalg.LinAlgError):
+                return None
+        if not atom.converged:
+            return None
         forms[s] = RadialFormFactor.of(basis.points, basis.weights, atom.density)
     return forms
 
