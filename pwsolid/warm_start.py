@@ -366,13 +366,18 @@ def atomic_density_forms(pseudopotentials: dict, model: str = "pseudo-atom") -> 
     ``model="pseudo-atom"``: the density of the neutral pseudo-atom
     (:func:`pwsolid.pseudo.atom.solve_pseudo_atom`, LDA, its ground configuration);
     ``"gaussian"``: a normalised Gaussian of the valence charge, 1 bohr wide (a
-    cheaper model). ``pseudopotentials`` maps species to loaded pseudopotentials.
+    cheaper model; measured on the displaced 8-atom silicon relaxation it gave no
+    gain over the carried density alone, the pseudo-atom 9 %, see
+    benchmarks/README.md). ``pseudopotentials`` maps species to loaded
+    pseudopotentials.
     None when a species' pseudo-atom cannot be solved (no default configuration,
     no convergence): a start without the moved-atoms term is still a good start.
     """
     from .pseudo.atom import radial_basis, solve_pseudo_atom
     from .pseudo.core import PartialCore
 
+    if model not in ("pseudo-atom", "gaussian"):
+        raise ValueError(f"unknown atomic density model {model!r}")
     if model == "gaussian":
         return {s: PartialCore(float(pp.valence), 1.0) for s, pp in pseudopotentials.items()}
     basis = radial_basis()

@@ -138,6 +138,9 @@ def test_pseudo_atom_form_factor_holds_the_valence_charge():
     # the radial quadrature integrates the density to about 1e-9 (the solver tolerance)
     assert ff[0] == pytest.approx(4.0, rel=1e-7)
     assert abs(ff[1]) < 4.0 and ff[2] < 1e-6 * ff[0]
+    # the Gaussian model holds the valence charge too (exactly, in closed form)
+    gauss = atomic_density_forms(load_pseudopotentials(["Si"], LOCAL_SILICON), "gaussian")
+    assert gauss["Si"].form_factor(np.array([0.0]))[0] == pytest.approx(4.0, rel=1e-14)
     # an element without a default valence configuration has no pseudo-atom: no forms
     # (the relaxation then starts from the carried density alone), not an error
     import dataclasses
