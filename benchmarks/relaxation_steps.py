@@ -15,22 +15,26 @@ tolerances per step: loosened while the forces are far above the threshold (the
 default), or the settings' own throughout with --fixed-tolerance.
 
 Measured (2 shared cores, one run each; the defaults: 8 Ha, one k-point at the
-half-offset corner, which avoids the 8-atom cell's degenerate levels at Gamma):
+half-offset corner, which avoids the 8-atom cell's degenerate levels at Gamma). The
+warm starts carry the density along with the moved atoms (superposed pseudo-atom
+densities, bonding density extrapolated from the step before; pwsolid.warm_start)
+and converge the first eigensolver pass to 0.2 of the expected start residual:
 
 ====================================  =====  ===============================  =====
 run                                   moves  SCF iterations, steps 0..8       mean*
 ====================================  =====  ===============================  =====
-warm, loosened early tolerances         8    13 7 8 7 7 7 8 7 7               7.25
+warm, loosened early tolerances         8    13 5 5 5 6 6 6 6 5               5.5
 cold, loosened early tolerances         8    13 8 9 10 10 10 11 12 12         10.25
-warm, --fixed-tolerance                 8    13 10 11 9 9 9 9 8 7            9.0
+warm, --fixed-tolerance                 8    13 9 8 7 7 7 7 6 5               7.0
 cold, --fixed-tolerance                 8    13 13 13 12 12 12 12 12 12       12.25
 ====================================  =====  ===============================  =====
 
-(*) steps 1..8. Warm / cold: 0.71 (loosened), 0.73 (fixed). The 10-move target is met;
-the 40 % target is not: this SCF shrinks the density residual about threefold per
-iteration, so even a start 4e-4 from self-consistency (the last step) needs 7
-iterations to reach 1e-6, against 12 from scratch. Reusing the Pulay mixer's history
-from one step to the next would be the next lever (it needs a ground_state argument).
+(*) steps 1..8. Warm / cold: 0.54 (loosened), 0.57 (fixed); before the moved-atoms
+start 0.71 and 0.73 (benchmarks/README.md, "Warm-started relaxation steps"). The
+10-move target is met; the 40 % target is not: this SCF shrinks the density residual
+about 2.5-fold per iteration, and the later warm starts still begin 1e-4 to 7e-4 from
+self-consistency, so 5-6 iterations remain. Carrying the Pulay mixer's history from
+one step to the next was tried and gave nothing.
 """
 
 from __future__ import annotations

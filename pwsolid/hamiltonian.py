@@ -17,7 +17,7 @@ from .basis import PlaneWaveSet, grid_g_vectors
 from .fft import FFTGrid
 
 __all__ = ["KPointHamiltonian", "local_potential", "core_density", "structure_factors",
-           "kinetic_preconditioner"]
+           "superposed_density", "kinetic_preconditioner"]
 
 
 def structure_factors(fractional_positions: np.ndarray, miller: np.ndarray) -> np.ndarray:
@@ -61,6 +61,35 @@ def core_density(lattice: np.ndarray, fractional_positions: np.ndarray, species,
     return _species_sum(lattice, fractional_positions, species, grid_shape,
                         lambda s, q: (cores[s].form_factor(q) if cores.get(s) is not None
                                       else np.zeros_like(q)))
+
+
+def superposed_density(lattice: np.ndarray, fractional_positions: np.ndarray, species,
+                       forms: dict, grid_shape) -> np.ndarray:
+    """Superposition of spherical atomic densities on the real-space FFT grid.
+
+    Parameters
+    ----------
+    lattice : (3, 3) bohr
+    fractional_positions : (n_atoms, 3)
+    species : sequence of str, one per atom
+    forms : mapping species -> object with ``form_factor(q)``, the Fourier transform
+        int n_s(r) e^{-i q.r} d^3r (electrons) of that species' density
+    grid_shape : 3 ints
+
+    Returns
+    -------
+    ndarray (*grid_shape) float64, bohr^-3
+        n(r) = sum_G n(G) e^{iG.r}, n(G) = (1/Omega) sum_s n_s(|G|) S_s(G), on the
+        grid points r = sum_i (j_i / N_i) a_i; it integrates to sum_atoms n_s(0).
+
+    Notes
+    -----
+    Components beyond the grid's frequencies are dropped, so a density narrower
+    than the grid spacing is smoothed, not aliased.
+    """
+    coef = _species_sum(lattice, fractional_positions, species, grid_shape,
+                        lambda s, q: forms[s].form_factor(q))
+    return np.fft.ifftn(coef).real * coef.size
 
 
 def _with_g0(form_factor: np.ndarray, g0: float) -> np.ndarray:

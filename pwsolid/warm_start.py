@@ -12,21 +12,27 @@ convergence studies, and later relaxations and the ASE calculator.
   up to two further neighbours; :func:`transfer_density` moves a density to a
   homogeneously deformed cell, :func:`extrapolate_density` extrapolates it in
   volume, and :func:`starting_point` turns a chain into the SCF's starting
-  density, orbitals and expected residual.
+  density, orbitals and expected residual; when the atoms moved it adds the
+  change of a superposition of atomic densities (:func:`moved_atoms_density`,
+  forms from :func:`atomic_density_forms`).
 """
 
 from __future__ import annotations
 
 import dataclasses
+import warnings
 from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 
 from .basis import transfer_coefficients
+from .errors import InputError
+from .hamiltonian import superposed_density
 
 __all__ = ["WavefunctionStart", "start_wavefunctions", "WarmStart", "transfer_density",
-           "extrapolate_density", "starting_point", "wavefunction_start_of"]
+           "extrapolate_density", "starting_point", "wavefunction_start_of",
+           "RadialFormFactor", "atomic_density_forms", "moved_atoms_density"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -126,12 +132,21 @@ class WarmStart:
         which may have a partner in turn: the starting density is then
         extrapolated in volume from up to three points, the orbitals from two
         (see :func:`extrapolate_density`).
+    crystal : pwsolid.crystal.Crystal or None
+        That point's structure, when known: a start for the same cell with moved
+        atoms then adds the change of the atomic densities (:func:`starting_point`).
+    earlier : WarmStart or None
+        The point this one was started from (with its ``crystal``), when known: the
+        moved-atoms start then also extrapolates the change of the bonding density
+        (:func:`moved_atoms_density`).
     """
 
     density: np.ndarray
     volume: float
     wavefunctions: Any = None
     partner: "WarmStart | None" = None
+    crystal: Any = None
+    earlier: "WarmStart | None" = None
 
     @classmethod
     def of(cls, result, partner: "WarmStart | None" = None) -> "WarmStart":
@@ -280,18 +295,34 @@ def _extrapolated_orbitals(start: WarmStart, new_volume: float):
     return start.wavefunctions.extrapolated([(weights[1], chain[1].wavefunctions)])
 
 
-def starting_point(warm: WarmStart | None, grid_shape, volume: float):
+def starting_point(warm: WarmStart | None, grid_shape, volume: float, crystal=None,
+                   atomic_forms: dict | None = None):
     """(density, orbitals, expected residual) to start a cell of ``volume`` (bohr^3)
     and FFT grid ``grid_shape`` from a chain of finished neighbours.
 
     The density is extrapolated (:func:`extrapolate_density`), the orbitals
     linearly when two neighbours have them; the expected residual (None for a
     single neighbour) sets the first eigensolver tolerance of the SCF. All None
-    without a neighbour.
+    without a neighbour. With the new structure ``crystal`` and ``atomic_forms``
+    (species -> form factor of its atomic density, :func:`atomic_density_forms`),
+    and a neighbour that knows its own structure (``warm.crystal``, same species),
+    the density also follows the moved atoms (:func:`moved_atoms_density`).
     """
     if warm is None:
         return None, None, None
     density, expected = _extrapolation(warm, grid_shape, volume)
+    old = warm.crystal
+    if (crystal is not None and atomic_forms is not None and old is not None
+            and list(old.species) == list(crystal.species)):
+        before = warm.earlier
+        if before is not None and (before.crystal is None
+                                   or list(before.crystal.species) != list(crystal.species)):
+            before = None
+        density = moved_atoms_density(
+            density, crystal.lattice, old.positions, crystal.positions, crystal.species,
+            atomic_forms, earlier=None if before is None else (
+                transfer_density(before.density, before.volume, grid_shape, volume),
+                before.crystal.positions))
     waves = _extrapolated_orbitals(warm, volume)
     if expected is not None:
         expected *= _START_RESIDUAL_PER_ESTIMATE
@@ -305,3 +336,133 @@ def wavefunction_start_of(outcome) -> WavefunctionStart | None:
             getattr(outcome, "wavefunctions", None) is not None:
         return WavefunctionStart.of(outcome)
     return None
+
+
+@dataclass(frozen=True, eq=False)
+class RadialFormFactor:
+    """Fourier transform of a spherical density, tabulated: ``form_factor(q)``
+    interpolates ``values`` (electrons) linearly in ``q`` (1/bohr, ascending) and
+    is 0 beyond the table."""
+
+    q: np.ndarray
+    values: np.ndarray
+
+    @classmethod
+    def of(cls, r: np.ndarray, weights: np.ndarray, density: np.ndarray,
+           q_max: float = 40.0, n_q: int = 4001) -> "RadialFormFactor":
+        """n(q) = 4 pi int r^2 n(r) sin(qr)/(qr) dr on a radial quadrature (``r``,
+        ``weights``, bohr) of a density ``n(r)`` (bohr^-3), tabulated to ``q_max``."""
+        q = np.linspace(0.0, q_max, n_q)
+        kernel = np.sinc(np.outer(q, r) / np.pi)
+        return cls(q, 4 * np.pi * kernel @ (weights * r ** 2 * density))
+
+    def form_factor(self, q: np.ndarray) -> np.ndarray:
+        return np.interp(q, self.q, self.values, right=0.0)
+
+
+def atomic_density_forms(pseudopotentials: dict, model: str = "pseudo-atom") -> dict:
+    """Form factors of each species' free-atom valence density (electrons).
+
+    ``model="pseudo-atom"``: the density of the neutral pseudo-atom
+    (:func:`pwsolid.pseudo.atom.solve_pseudo_atom`, LDA, its ground configuration);
+    ``"gaussian"``: a normalised Gaussian of the valence charge, 1 bohr wide (a
+    cheaper model; measured on the displaced 8-atom silicon relaxation it gave no
+    gain over the carried density alone, the pseudo-atom 9 %, see
+    benchmarks/README.md). ``pseudopotentials`` maps species to loaded
+    pseudopotentials.
+    None when a species' pseudo-atom cannot be solved (no default configuration,
+    no convergence): a start without the moved-atoms term is still a good start.
+    """
+    from .pseudo.atom import radial_basis, solve_pseudo_atom
+    from .pseudo.core import PartialCore
+
+    if model not in ("pseudo-atom", "gaussian"):
+        raise ValueError(f"unknown atomic density model {model!r}")
+    if model == "gaussian":
+        return {s: PartialCore(float(pp.valence), 1.0) for s, pp in pseudopotentials.items()}
+    basis = radial_basis()
+    forms = {}
+    for s, pp in pseudopotentials.items():
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            try:
+                atom = solve_pseudo_atom(pp, basis=basis)
+            except (InputError, ValueError, ArithmeticError, np.linalg.LinAlgError):
+                return None
+        if not atom.converged:
+            return None
+        forms[s] = RadialFormFactor.of(basis.points, basis.weights, atom.density)
+    return forms
+
+
+def moved_atoms_density(density: np.ndarray, lattice: np.ndarray, old_positions: np.ndarray,
+                        new_positions: np.ndarray, species, forms: dict,
+                        earlier=None) -> np.ndarray:
+    """A self-consistent density carried along with moved atoms (bohr^-3).
+
+    Parameters
+    ----------
+    density : ndarray (n1, n2, n3) or (n_spin, n1, n2, n3) float64, bohr^-3
+        Self-consistent density of the atoms at ``old_positions``.
+    lattice : (3, 3) bohr
+        The new cell (the density already carried to it at fixed fractional
+        coordinates, as :func:`transfer_density` does).
+    old_positions, new_positions : (n_atoms, 3) fractional
+    species : sequence of str
+    forms : mapping species -> ``form_factor(q)`` of its atomic density
+    earlier : (density, positions) or None
+        The self-consistent density (same grid and cell) and fractional positions of
+        the structure before ``old_positions``: the bonding part is then extrapolated
+        too, with the alpha that best continues the last move of the atoms.
+
+    Returns
+    -------
+    ndarray, the shape of ``density``, float64
+        n + N[R_new] - N[R_old], N the superposition of atomic densities
+        (:func:`pwsolid.hamiltonian.superposed_density`); spin channels take half
+        the change each. Negative values are clipped and the charge restored.
+
+    Notes
+    -----
+    The first-order density extrapolation for moving atoms: the part of the density
+    that the atoms carry rigidly follows them, the bonding rearrangement
+    b = n - N[R_old] is kept. With an earlier structure,
+    b_new = b + alpha (b - b_earlier), alpha = <dR, dR_1> / <dR_1, dR_1> minimising
+    |dR - alpha dR_1| for the new move dR = R_new - R_old and the last one
+    dR_1 = R_old - R_earlier (Cartesian, nearest image); alpha is kept within [0, 1]
+    (spin densities use the first-order form).
+
+    References
+    ----------
+    D. Alfe, Comput. Phys. Commun. 118, 31 (1999) (from memory).
+    """
+    density = np.asarray(density, float)
+    shape = density.shape[-3:]
+    at_old = superposed_density(lattice, old_positions, species, forms, shape)
+    change = superposed_density(lattice, new_positions, species, forms, shape) - at_old
+    if earlier is not None and density.ndim == 3:
+        alpha = _continuation(lattice, earlier[1], old_positions, new_positions)
+        if alpha > 0:
+            before = np.asarray(earlier[0], float) - superposed_density(
+                lattice, earlier[1], species, forms, shape)
+            change = change + alpha * (density - at_old - before)
+    if density.ndim == 4:
+        change = change / density.shape[0]
+    moved = np.maximum(density + change, 0.0)
+    axes = (-3, -2, -1)
+    return moved * (density.mean(axis=axes, keepdims=True)
+                    / moved.mean(axis=axes, keepdims=True))
+
+
+def _continuation(lattice, earlier, old, new) -> float:
+    """alpha in [0, 1] minimising |(new - old) - alpha (old - earlier)| (Cartesian, nearest
+    image of every atom); 0 when the last move was zero."""
+    def move(a, b):
+        d = np.asarray(b, float) - np.asarray(a, float)
+        return (d - np.rint(d)) @ np.asarray(lattice, float)
+
+    last, step = move(earlier, old), move(old, new)
+    norm = float(np.sum(last * last))
+    if norm == 0.0:
+        return 0.0
+    return float(np.clip(np.sum(step * last) / norm, 0.0, 1.0))

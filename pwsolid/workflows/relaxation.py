@@ -24,7 +24,8 @@ every proposed step is projected onto the symmetric displacements and strains
 (the group average), so round-off cannot break the symmetry over many steps.
 
 Every step starts its SCF from the previous step's density (carried to the new
-cell at fixed fractional coordinates by :mod:`pwsolid.warm_start`) and orbitals; a
+cell at fixed fractional coordinates by :mod:`pwsolid.warm_start`, and along with
+the moved atoms: see :mod:`pwsolid.workflows.relaxation_evaluation`) and orbitals; a
 checkpoint after every step (optimiser state, history, latest density: a
 ``relaxation-step`` record of :mod:`pwsolid.store`) lets a killed run resume. Its
 fingerprint is the store's fingerprint of the starting crystal and settings plus
