@@ -115,8 +115,8 @@ CRYSTAL_KEYS: tuple[Setting, ...] = (
     Setting("crystal.atoms", None, "atoms", "atoms with species and fractional position",
             default_text="required (explicit)"),
     Setting("crystal.structure_file", None, "file",
-            "read the cell and atoms from a structure file (CIF, or any format ASE reads; "
-            "needs the ase extra) instead of a prototype", default_text="none"),
+            "read the cell and atoms from a structure file (CIF, or any format the atomistic library reads; "
+            "needs the atomistic extra) instead of a prototype", default_text="none"),
     Setting("crystal.symmetry_tolerance", None, "quantity",
             "atoms of a structure file this close to symmetric positions count as symmetric; "
             "the structure is made exactly symmetric at it", unit="length", low=1e-6,
@@ -541,7 +541,7 @@ class _Reader:
     def _crystal_from_file(self, table: Mapping) -> tuple[Crystal, dict]:
         """[crystal] with ``structure_file``: the cell and atoms come from the file."""
         from .interop import MissingExtraError
-        from .interop.ase_structures import DEFAULT_SYMMETRY_TOLERANCE, read_structure
+        from .interop.structure_files import DEFAULT_SYMMETRY_TOLERANCE, read_structure
 
         for key in table:
             if key not in (*_FILE_ONLY_KEYS, "structure_file", "supercell"):

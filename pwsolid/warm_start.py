@@ -3,7 +3,7 @@
 One home for every way pwsolid reuses a converged calculation to start another:
 the SCF (:func:`pwsolid.scf.ground_state` takes ``initial_density``,
 ``initial_wavefunctions`` and ``start_residual``), the volume scans and
-convergence studies, and later relaxations and the ASE calculator.
+convergence studies, and later relaxations and the atomistic library calculator.
 
 * :class:`WavefunctionStart`: converged orbitals, carried to a new cell's plane
   waves by Miller index at equal k-points (:func:`start_wavefunctions`), and

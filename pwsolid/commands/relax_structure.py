@@ -8,7 +8,7 @@ directory (default: where the input's result file would go):
 * ``<stem>.relaxation.json``: the trajectory document (schema ``pwsolid.relaxation/1``);
 * ``<stem>.relaxation.png`` and ``.svg``: energy, largest force and stress per step;
 * ``<stem>.relaxed.toml``: the final structure as an input file that runs as it is;
-* ``<stem>.relaxed.cif``: the final structure as a CIF file, when the optional ASE
+* ``<stem>.relaxed.cif``: the final structure as a CIF file, when the optional atomistic library
   library is installed (otherwise a one-line note says it was skipped);
 * ``<stem>.relaxation-checkpoint.npz`` while running (a ``relaxation-step`` record
   of :mod:`pwsolid.store`): re-running the same command after an interruption
@@ -45,7 +45,7 @@ def register(subparsers) -> None:
                     "the input's [relaxation] table, keeping the space group. Re-running the "
                     "same command resumes an interrupted relaxation.",
         epilog="Writes <stem>.relaxation.json, <stem>.relaxation.png/.svg, "
-               "<stem>.relaxed.toml and (with ASE installed) <stem>.relaxed.cif. Exit code 4 "
+               "<stem>.relaxed.toml and (with the atomistic library installed) <stem>.relaxed.cif. Exit code 4 "
                "when the thresholds were not reached.")
     p.add_argument("input", help="ground-state input file (TOML) with an optional [relaxation]")
     p.add_argument("--output-dir", metavar="DIR",
@@ -175,11 +175,11 @@ def relaxed_input_text(run_input, crystal, converged: bool, source="") -> str:
     return "\n".join(lines)
 
 
-# -- the relaxed structure as a CIF file (optional: needs ASE) ---------------------------
+# -- the relaxed structure as a CIF file (optional: needs the atomistic library) ---------------------------
 
 def write_cif(path, crystal) -> str | None:
     """Write ``crystal`` as a CIF file (atomically) with
-    :func:`pwsolid.interop.ase_structures.write_structure`, when ASE is installed.
+    :func:`pwsolid.interop.structure_files.write_structure`, when the atomistic library is installed.
 
     The cell goes in angstrom, the positions fractional, in space group P 1 (the
     relaxed structure as it is; no symmetry is searched for).
@@ -190,11 +190,11 @@ def write_cif(path, crystal) -> str | None:
         None when written; otherwise a one-line note saying why it was skipped.
     """
     from ..interop import MissingExtraError
-    from ..interop.ase_structures import write_structure
+    from ..interop.structure_files import write_structure
 
     try:
         write_structure(path, crystal, file_format="cif")
     except MissingExtraError:
-        return ('Note: no CIF file written (the optional ASE library is not installed: '
-                'pip install "pwsolid[ase]")')
+        return ('Note: no CIF file written (the optional atomistic library, the Atomic Simulation Environment, is not installed: '
+                'pip install "pwsolid[atomistic]")')
     return None

@@ -2,7 +2,7 @@
 
 Each optional library is imported only inside its own adapter module, so the core
 installs and imports without it; a missing one raises :class:`MissingExtraError`
-naming the extra to install (``pip install "pwsolid[ase]"``).
+naming the extra to install (``pip install "pwsolid[atomistic]"``).
 """
 
 from __future__ import annotations

@@ -1,10 +1,11 @@
-"""Crystal structures to and from ASE and every file format ASE reads (layer 6).
+"""Crystal structures through the Atomic Simulation Environment (the "atomistic library"
+below): its atoms objects and every file format it reads (layer 6).
 
 :func:`crystal_from_atoms` and :func:`atoms_from_crystal` convert between
 :class:`pwsolid.crystal.Crystal` (bohr, fractional positions) and ``ase.Atoms``
-(angstrom); :func:`read_structure` reads CIF and any other format ASE knows, finds the
+(angstrom); :func:`read_structure` reads CIF and any other format the atomistic library knows, finds the
 space group with a tolerance the caller chooses and reports it;
-:func:`write_structure` writes a crystal as CIF (or any ASE format), atomically.
+:func:`write_structure` writes a crystal as CIF (or any format of the atomistic library), atomically.
 
 pwsolid computes bulk crystals: a structure that is not periodic along all three
 cell vectors (a molecule, a slab, a wire) is refused with a clear message.
@@ -71,7 +72,7 @@ class StructureImport:
 
 
 def _ase():
-    return require("ase", "ase", "reading and writing structures through ASE")
+    return require("ase", "atomistic", "reading and writing structures through the atomistic library")
 
 
 def crystal_from_atoms(atoms, *, source: str = "ase.Atoms") -> Crystal:
@@ -136,7 +137,7 @@ def atoms_from_crystal(crystal: Crystal):
 def read_structure(path, *, symmetry_tolerance: float = DEFAULT_SYMMETRY_TOLERANCE,
                    index: int = -1, file_format: str | None = None,
                    primitive: bool = False, symmetrize: bool = True) -> StructureImport:
-    """Read a crystal from any structure file ASE can read (CIF first of all).
+    """Read a crystal from any structure file the atomistic library can read (CIF first of all).
 
     Parameters
     ----------
@@ -152,17 +153,17 @@ def read_structure(path, *, symmetry_tolerance: float = DEFAULT_SYMMETRY_TOLERAN
         which for diamond or fcc crystals holds four times the atoms.
     symmetrize
         Make the cell and positions exactly symmetric under the space group found at
-        ``symmetry_tolerance`` (ASE's ``refine_symmetry``; orientation kept). A file's
+        ``symmetry_tolerance`` (the atomistic library's ``refine_symmetry``; orientation kept). A file's
         rounded coordinates (0.333333 for 1/3) otherwise lose symmetry at the much
         tighter tolerance the calculation uses. The largest atom move is reported.
 
     Raises
     ------
     InputError
-        Missing or unreadable file, a format ASE does not know, a non-periodic
+        Missing or unreadable file, a format the atomistic library does not know, a non-periodic
         structure, or a space group that cannot be determined.
     """
-    ase_io = require("ase.io", "ase", "reading structure files")
+    ase_io = require("ase.io", "atomistic", "reading structure files")
     path = Path(path)
     name = str(path)
     if not path.is_file():
@@ -170,9 +171,9 @@ def read_structure(path, *, symmetry_tolerance: float = DEFAULT_SYMMETRY_TOLERAN
                          "is not a regular file", key="crystal.structure_file", source=name)
     try:
         atoms = ase_io.read(str(path), index=index, format=file_format)
-    except Exception as exc:        # ASE raises many types for unreadable files
-        raise InputError(f"ASE could not read this structure file ({type(exc).__name__}: "
-                         f"{exc}); give a CIF or another format ASE reads",
+    except Exception as exc:        # the atomistic library raises many types for unreadable files
+        raise InputError(f"the atomistic library could not read this structure file ({type(exc).__name__}: "
+                         f"{exc}); give a CIF or another format the atomistic library reads",
                          key="crystal.structure_file", source=name) from None
     if symmetrize:
         atoms, moved = _refined(atoms, symmetry_tolerance, name)
@@ -231,7 +232,7 @@ def _primitive(crystal: Crystal, tolerance: float, source: str) -> Crystal:
 
 def write_structure(path, crystal: Crystal, *, file_format: str | None = None) -> None:
     """Write ``crystal`` to ``path`` (CIF when the name ends in .cif), atomically."""
-    ase_io = require("ase.io", "ase", "writing structure files")
+    ase_io = require("ase.io", "atomistic", "writing structure files")
     path = Path(path)
     fmt = file_format or ("cif" if path.suffix.lower() == ".cif" else None)
     if fmt is None:
@@ -242,7 +243,7 @@ def write_structure(path, crystal: Crystal, *, file_format: str | None = None) -
             raise InputError("cannot tell the structure format from the file name; use a "
                              "name ending in .cif or give file_format", value=str(path)) from None
     atoms = atoms_from_crystal(crystal)
-    # ASE's writers differ in whether they want a text or a binary file object
+    # the atomistic library's writers differ in whether they want a text or a binary file object
     try:
         buffer = io.BytesIO()
         ase_io.write(buffer, atoms, format=fmt)

@@ -1,15 +1,16 @@
-"""An ASE calculator backed by pwsolid (layer 6).
+"""A calculator for the Atomic Simulation Environment (the "atomistic library" below),
+backed by pwsolid (layer 6).
 
-``PwsolidCalculator`` gives ASE's optimisers, equation-of-state tools and molecular
+``PwsolidCalculator`` gives the atomistic library's optimisers, equation-of-state tools and molecular
 dynamics the energy, free energy, forces and stress of a pwsolid ground state::
 
     from ase.build import bulk
-    from pwsolid.interop.ase_calculator import PwsolidCalculator
+    from pwsolid.interop.atomistic_calculator import PwsolidCalculator
     si = bulk("Si", "diamond", a=5.43)
     si.calc = PwsolidCalculator.from_input_file("inputs/silicon-substrate.toml")
-    print(si.get_potential_energy(), si.get_stress())
+    print(si.get_total_energy(), si.get_stress())
 
-Units follow ASE: eV, eV/angstrom, eV/angstrom^3; ASE's stress convention is
+Units follow the atomistic library: eV, eV/angstrom, eV/angstrom^3; the atomistic library's stress convention is
 sigma = (1/V) dE/d eps (Voigt order xx, yy, zz, yz, xz, xy), the same sign as
 pwsolid's. ``energy`` is the zero-smearing estimate, ``free_energy`` the free energy
 F = E - sigma S that the SCF minimises and whose derivatives the forces are.
@@ -29,23 +30,23 @@ from ..errors import InputError
 from ..settings import GroundStateSettings
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA, HARTREE_EV
 from . import require
-from .ase_structures import crystal_from_atoms
+from .structure_files import crystal_from_atoms
 
 __all__ = ["PwsolidCalculator"]
 
-_calculator = require("ase.calculators.calculator", "ase", "the ASE calculator")
+_calculator = require("ase.calculators.calculator", "atomistic", "the atomistic library calculator")
 
 _EV_PER_ANGSTROM3 = HARTREE_EV / BOHR_ANGSTROM ** 3
 
 
 class PwsolidCalculator(_calculator.Calculator):
-    """ASE calculator running a pwsolid ground state for each new geometry.
+    """Calculator of the atomistic library running a pwsolid ground state for each new geometry.
 
     Parameters
     ----------
     settings
         Numerical settings (default ``GroundStateSettings()``); the crystal comes
-        from the ASE atoms.
+        from the atomistic library atoms.
     log
         Called with each line of the SCF table (e.g. ``print``); silent by default.
     warm_start
@@ -70,7 +71,7 @@ class PwsolidCalculator(_calculator.Calculator):
         # the first eigensolver pass is converged to about that (see scf.ground_state);
         # a geometry step is usually no larger than the one before, so the residual the
         # last warm start began with is the estimate (measured on a displaced silicon
-        # cell under ASE's BFGS: 13 10 10 10 15 22 iterations with the default, 7 7 at
+        # cell under the atomistic library's BFGS: 13 10 10 10 15 22 iterations with the default, 7 7 at
         # the end with this)
         self._start_residual = 1e-3
 

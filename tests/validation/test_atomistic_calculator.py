@@ -1,6 +1,7 @@
-"""pwsolid as an ASE calculator: ASE's own optimiser and EOS fit on pwsolid numbers.
+"""pwsolid as a calculator of the Atomic Simulation Environment (the "atomistic library"):
+its own optimiser and EOS fit on pwsolid numbers.
 
-Optional extra: skipped when ASE is not installed (the test extra installs it)."""
+Optional extra: skipped when the atomistic library is not installed (the test extra installs it)."""
 
 import numpy as np
 import pytest
@@ -12,10 +13,10 @@ from ase.eos import EquationOfState  # noqa: E402
 from ase.optimize import BFGS  # noqa: E402
 
 from pwsolid.eos import fit_equation_of_state  # noqa: E402
-from pwsolid.interop.ase_calculator import PwsolidCalculator  # noqa: E402
+from pwsolid.interop.atomistic_calculator import PwsolidCalculator  # noqa: E402
 from pwsolid.scf import ground_state  # noqa: E402
 from pwsolid.settings import GroundStateSettings  # noqa: E402
-from pwsolid.interop.ase_structures import crystal_from_atoms  # noqa: E402
+from pwsolid.interop.structure_files import crystal_from_atoms  # noqa: E402
 from pwsolid.units import BOHR_ANGSTROM, HARTREE_EV  # noqa: E402
 
 # small but well-behaved silicon: 2 atoms, separable file, 8 Ha, 3x3x3 mesh through
@@ -38,7 +39,7 @@ def test_energy_is_pwsolid_energy_in_electronvolt():
 
 
 def test_forces_are_minus_the_energy_gradient_through_ase():
-    # central differences of ASE's own energies (Hellmann-Feynman: forces are the
+    # central differences of the atomistic library's own energies (Hellmann-Feynman: forces are the
     # negative gradient of the energy); 1e-3 angstrom steps, O(h^2) error ~1e-6 eV/A
     si = bulk("Si", "diamond", a=A)
     si.positions[1] += [0.06, -0.03, 0.02]
@@ -60,7 +61,7 @@ def test_forces_are_minus_the_energy_gradient_through_ase():
 @pytest.mark.slow
 def test_ase_optimiser_restores_the_diamond_bond():
     # the ideal diamond positions are a minimum by symmetry (every force vanishes by
-    # the site symmetry -43m): ASE's BFGS must bring a displaced atom back to
+    # the site symmetry -43m): the atomistic library's BFGS must bring a displaced atom back to
     # a sqrt(3)/4 from its neighbour (geometry of the diamond structure)
     si = bulk("Si", "diamond", a=A)
     si.positions[1] += [0.08, -0.05, 0.03]
@@ -75,7 +76,7 @@ def test_ase_optimiser_restores_the_diamond_bond():
 
 
 def test_ase_equation_of_state_agrees_with_pwsolid_fit():
-    # ASE's Birch-Murnaghan fit and pwsolid's of the same seven energies: two
+    # the atomistic library's Birch-Murnaghan fit and pwsolid's of the same seven energies: two
     # implementations of Birch, Phys. Rev. 71, 809 (1947)
     calc = PwsolidCalculator(SETTINGS)
     volumes, energies = [], []
@@ -94,7 +95,7 @@ def test_ase_equation_of_state_agrees_with_pwsolid_fit():
 
 def test_compressed_cell_pushes_outward():
     # a cell squeezed 5 % below its equilibrium lattice constant has positive pressure:
-    # ASE's stress (1/V dE/d eps) is then negative on the diagonal (sign convention)
+    # the atomistic library's stress (1/V dE/d eps) is then negative on the diagonal (sign convention)
     si = bulk("Si", "diamond", a=0.95 * A)
     si.calc = PwsolidCalculator(SETTINGS)
     stress = si.get_stress()
@@ -114,7 +115,7 @@ def test_structure_file_gives_the_prototype_energy(name, prototype):
     # k-mesh and the plane-wave set are defined on the lattice vectors, so a rotated
     # cell with the same metric is the same calculation (invariance; 1e-8 Ha)
     from pathlib import Path
-    from pwsolid.interop.ase_structures import read_structure
+    from pwsolid.interop.structure_files import read_structure
     path = Path(__file__).parents[1] / "data" / "structures" / name
     imported = read_structure(path, primitive=True).crystal
     # a mesh through Gamma keeps the hexagonal symmetry (a half-step shift does not)
@@ -127,7 +128,7 @@ def test_structure_file_gives_the_prototype_energy(name, prototype):
 
 
 def test_calculator_returns_the_native_forces_and_stress():
-    # the same ground state through ASE and natively: equal after the unit conversion
+    # the same ground state through the atomistic library and natively: equal after the unit conversion
     from pwsolid.forces import atomic_forces
     from pwsolid.stress import stress_tensor
     si = bulk("Si", "diamond", a=A)
@@ -143,12 +144,12 @@ def test_calculator_returns_the_native_forces_and_stress():
 
 @pytest.mark.slow
 def test_ase_optimiser_and_native_relaxation_reach_the_same_structure():
-    # two optimisers (ASE's BFGS on pwsolid forces; pwsolid's own BFGS) on the same
+    # two optimisers (the atomistic library's BFGS on pwsolid forces; pwsolid's own BFGS) on the same
     # energy surface of a cell with every atom displaced and no symmetry left: the
     # minimum is the same structure (1e-3 bohr; both stop at forces of 5e-5 Ha/bohr,
     # which with force constants of ~0.2 Ha/bohr^2 leaves ~2.5e-4 bohr)
     from pwsolid.crystal import diamond
-    from pwsolid.interop.ase_structures import atoms_from_crystal
+    from pwsolid.interop.structure_files import atoms_from_crystal
     from pwsolid.workflows.relaxation import RelaxationSettings, relax_structure
     rng = np.random.default_rng(7)
     start = diamond(5.43 / BOHR_ANGSTROM, "Si")
@@ -164,7 +165,7 @@ def test_ase_optimiser_and_native_relaxation_reach_the_same_structure():
     ours = native.crystal.cartesian_positions
     theirs = atoms.get_positions() / BOHR_ANGSTROM
     # compare the bond vector (a common translation of both atoms costs nothing), up
-    # to a lattice vector (ASE keeps atoms unwrapped, pwsolid wraps them into the cell)
+    # to a lattice vector (atomistic library keeps atoms unwrapped, pwsolid wraps them into the cell)
     gap = (theirs[1] - theirs[0]) - (ours[1] - ours[0])
     frac = gap @ np.linalg.inv(start.lattice)
     gap = (frac - np.round(frac)) @ start.lattice

@@ -1,5 +1,5 @@
-"""Structures in and out through ASE: hand-written CIF files of published structures,
-round trips, refusals (optional extra: skipped when ASE is not installed)."""
+"""Structures in and out through the atomistic library: hand-written CIF files of published structures,
+round trips, refusals (optional extra: skipped when the atomistic library is not installed)."""
 
 from pathlib import Path
 
@@ -12,7 +12,7 @@ pytest.importorskip("ase")
 from pwsolid.crystal import diamond, hexagonal_close_packed, rocksalt, zincblende  # noqa: E402
 from pwsolid.errors import InputError  # noqa: E402
 from pwsolid.interop import MissingExtraError, require  # noqa: E402
-from pwsolid.interop.ase_structures import (atoms_from_crystal, crystal_from_atoms,  # noqa: E402
+from pwsolid.interop.structure_files import (atoms_from_crystal, crystal_from_atoms,  # noqa: E402
                                             read_structure, write_structure)
 from pwsolid.units import BOHR_ANGSTROM  # noqa: E402
 
