@@ -32,6 +32,7 @@ import numpy as np
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
 from .relaxation_keys import RELAXATION_KEYS, read_relaxation
+from .elastic_keys import ELASTIC_KEYS, read_elastic
 from .resources import inputs_dir, pseudopotential_dir
 from .settings import SETTINGS_TABLE, UNIT_TEXT, GroundStateSettings, Setting
 from .preflight import check_cell_shape
@@ -166,6 +167,13 @@ RELAXATION_TABLE: tuple[Setting, ...] = tuple(
             kind if kind in ("name", "integer", "boolean") else "anything", meaning,
             unit=unit, default_text=default)
     for key, kind, unit, default, meaning in RELAXATION_KEYS)
+#: Keys of [elastic_constants] (the elastic-constants command), read and checked by
+#: :func:`pwsolid.elastic_keys.read_elastic`.
+ELASTIC_TABLE: tuple[Setting, ...] = tuple(
+    Setting(f"elastic_constants.{key}", None,
+            kind if kind in ("number", "integer", "boolean") else "anything", meaning,
+            unit=unit, default_text=default)
+    for key, kind, unit, default, meaning in ELASTIC_KEYS)
 
 INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     "crystal": CRYSTAL_KEYS,
@@ -173,6 +181,7 @@ INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     **_settings_tables(),
     "output": OUTPUT_KEYS,
     "relaxation": RELAXATION_TABLE,
+    "elastic_constants": ELASTIC_TABLE,
 }
 _SETTINGS_SECTIONS = tuple(_settings_tables())
 _SCHEMA: dict[str, dict[str, Setting]] = {
@@ -277,6 +286,7 @@ class RunInput:
     checkpoint_file: Path | None = None
     checkpoint_interval: int = 1
     relaxation: Any = None     # RelaxationSettings of the [relaxation] table (or defaults)
+    elastic: Any = None        # ElasticSettings of the [elastic_constants] table (or defaults)
 
 
 # -- reading -------------------------------------------------------------
@@ -352,7 +362,11 @@ def parse_input(document: Mapping, *, source: str | None = None,
     _check_cell_shape(run, source)
     table = document.get("relaxation")          # [relaxation]: see relaxation_keys.py
     echo = run.echo if table is None else {**run.echo, "relaxation": dict(table)}
-    return replace(run, relaxation=read_relaxation(table, source), echo=echo)
+    elastic = document.get("elastic_constants")  # [elastic_constants]: see elastic_keys.py
+    if elastic is not None:
+        echo = {**echo, "elastic_constants": dict(elastic)}
+    return replace(run, relaxation=read_relaxation(table, source),
+                   elastic=read_elastic(elastic, source), echo=echo)
 
 
 def _check_cell_shape(run: RunInput, source: str | None) -> None:

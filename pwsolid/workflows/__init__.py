@@ -7,6 +7,7 @@ structures, densities of states and the uniform-gas testbench.
 from .band_structure import BandStructure, band_structure, empirical_band_structure
 from .convergence import ConvergenceStudy, converge_settings
 from .density_of_states import DOSResult, density_of_states
+from .elastic_constants import ElasticResult, ElasticSettings, elastic_constants
 from .equation_of_state import VolumeScan, scan_volumes
 from .relaxation import RelaxationResult, RelaxationSettings, relax_lattice, relax_structure
 from .structures import StructureComparison, compare_structures
@@ -17,5 +18,5 @@ __all__ = [
     "converge_settings", "DOSResult", "density_of_states", "VolumeScan", "scan_volumes",
     "StructureComparison", "compare_structures", "UniformGasReport", "testbench_report",
     "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
-    "relax_structure",
+    "relax_structure", "ElasticResult", "ElasticSettings", "elastic_constants",
 ]
