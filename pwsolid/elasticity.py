@@ -59,25 +59,30 @@ def stress_voigt(sigma) -> np.ndarray:
 
 
 def full_tensor(c) -> np.ndarray:
-    """The (3, 3, 3, 3) tensor C_abcd of a (6, 6) Voigt matrix."""
+    """The (..., 3, 3, 3, 3) tensor C_abcd of (..., 6, 6) Voigt matrices."""
     c = np.asarray(c, float)
-    return c[_VOIGT_INDEX[:, :, None, None], _VOIGT_INDEX[None, None, :, :]]
+    return c[..., _VOIGT_INDEX[:, :, None, None], _VOIGT_INDEX[None, None, :, :]]
 
 
 def voigt_matrix(t) -> np.ndarray:
-    """The (6, 6) Voigt matrix of a (3, 3, 3, 3) tensor with the elastic index symmetries."""
+    """The (..., 6, 6) Voigt matrices of (..., 3, 3, 3, 3) tensors with the elastic index
+    symmetries."""
     t = np.asarray(t, float)
-    return np.array([[t[a, b, c, d] for c, d in VOIGT_PAIRS] for a, b in VOIGT_PAIRS])
+    rows = np.array([p for p in VOIGT_PAIRS])
+    return t[..., rows[:, 0, None], rows[:, 1, None], rows[None, :, 0], rows[None, :, 1]]
 
 
 def symmetrize_elastic(c, rotations) -> np.ndarray:
-    """Group average (1/N) sum_R R R R R C of a (6, 6) matrix over Cartesian rotations
-    (n_ops, 3, 3); the result is also made symmetric (C_ij = C_ji)."""
-    c = 0.5 * (np.asarray(c, float) + np.asarray(c, float).T)
+    """Group average (1/N) sum_R R R R R C of (..., 6, 6) matrices over Cartesian
+    rotations (n_ops, 3, 3); the result is also made symmetric (C_ij = C_ji)."""
+    c = np.asarray(c, float)
+    c = 0.5 * (c + np.swapaxes(c, -1, -2))
     r = np.asarray(rotations, float)
-    t = np.einsum("nai,nbj,nck,ndl,ijkl->abcd", r, r, r, r, full_tensor(c),
-                  optimize=True) / len(r)
-    return voigt_matrix(t)
+    # one (81, 81) map per operation, summed: R_ai R_bj R_ck R_dl
+    rr = np.einsum("nai,nbj->nabij", r, r).reshape(len(r), 9, 9)
+    m = np.einsum("nxy,nzw->xzyw", rr, rr).reshape(81, 81) / len(r)
+    flat = full_tensor(c).reshape(*c.shape[:-2], 81)
+    return voigt_matrix((flat @ m.T).reshape(*c.shape[:-2], 3, 3, 3, 3))
 
 
 def _symmetric_basis() -> list[np.ndarray]:
@@ -141,7 +146,7 @@ def elastic_pattern(rotations, tol: float = 1e-6) -> ElasticPattern:
     whose values fix them (a greedy rank test), and the basis is the dual one
     (basis[k] has 1 at its own entry and 0 at the other chosen entries).
     """
-    images = np.array([symmetrize_elastic(m, rotations) for m in _symmetric_basis()])
+    images = symmetrize_elastic(np.array(_symmetric_basis()), rotations)
     flat = images.reshape(len(images), -1)
     u, s, vt = np.linalg.svd(flat, full_matrices=False)
     rank = int(np.sum(s > tol * max(s[0], 1.0)))

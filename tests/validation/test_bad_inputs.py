@@ -184,6 +184,15 @@ CASES = [
      "relaxation.moves", "accepted: positions, cell, both"),
     ("misspelt relaxation key", CRYSTAL + '[relaxation]\nforce_treshold = "1e-4 Ha/bohr"\n',
      "relaxation.force_treshold", "did you mean 'relaxation.force_threshold'?"),
+    # elastic constants (the elastic-constants command)
+    ("strain far beyond the linear range", CRYSTAL + "[elastic_constants]\nlargest_strain = 0.5\n",
+     "elastic_constants.largest_strain", "must be a number from 1e-5 to 0.05"),
+    ("strain written as a percentage", CRYSTAL + '[elastic_constants]\nlargest_strain = "1 %"\n',
+     "elastic_constants.largest_strain", "must be a plain number, e.g. 0.01"),
+    ("no strain points", CRYSTAL + "[elastic_constants]\nstrains_per_sign = 0\n",
+     "elastic_constants.strains_per_sign", "integer from 1 to 10"),
+    ("elastic force threshold without unit", CRYSTAL + "[elastic_constants]\nforce_threshold = 1e-4\n",
+     "elastic_constants.force_threshold", "needs its unit"),
 ]
 
 
