@@ -12,7 +12,7 @@ from __future__ import annotations
 from collections.abc import Mapping
 
 from .errors import InputError
-from .relaxation_keys import parse_force
+from .relaxation_keys import parse_force, plain_value
 
 __all__ = ["ELASTIC_KEYS", "read_elastic"]
 
@@ -43,22 +43,14 @@ def read_elastic(table: Mapping | None, source=None):
         dotted = f"elastic_constants.{key}"
         kind = kinds[key]                   # unknown keys were refused by the reader before
 
-        def bad(why):
-            raise InputError(why, key=dotted, value=value, source=source, has_value=True)
-
         if kind == "quantity":
             kwargs[key] = parse_force(value, dotted, source)
-        elif kind == "integer":
-            if isinstance(value, bool) or not isinstance(value, int):
-                bad("must be an integer (a TOML integer, no decimal point)")
-            kwargs[key] = value
-        elif kind == "boolean":
-            if not isinstance(value, bool):
-                bad("must be a TOML boolean: true or false (no quotes)")
-            kwargs[key] = value
+        elif kind in ("integer", "boolean"):
+            kwargs[key] = plain_value(value, kind, dotted, source)
         else:
             if isinstance(value, bool) or not isinstance(value, (int, float)):
-                bad("must be a plain number, e.g. 0.01 for a strain of 1 %")
+                raise InputError("must be a plain number, e.g. 0.01 for a strain of 1 %",
+                                 key=dotted, value=value, source=source, has_value=True)
             kwargs[key] = float(value)
     try:
         return ElasticSettings(**kwargs)
