@@ -402,6 +402,31 @@ def _zeta(crystal: Crystal, points: list, components) -> tuple[float | None, tup
     return (float(np.mean(values)) if values else None), tuple(values)
 
 
+def _run_points(crystal, settings, elastic, plan, store, evaluator, scf_log, say):
+    """Every planned (component, amplitude) point: from the restart file when it holds a
+    converged one, computed (and written at once) otherwise. Returns (entries, reused)."""
+    points, resumed = [], 0
+    for n, (j, amp) in enumerate(plan, start=1):
+        found = store.find(_at(j, amp)) if store is not None else None
+        label = "unstrained" if j < 0 else f"{_VOIGT_LABELS[j]} {amp:+.4f}"
+        if found is not None and found.get("converged"):
+            points.append(found)
+            resumed += 1
+            say(f"[{n}/{len(plan)}] {label}: taken from the restart file")
+            continue
+        cell = crystal if j < 0 else _strained(crystal, j, amp)
+        entry = {"strain_component": j + 1, "amplitude": amp,
+                 **_evaluate_point(cell, settings, elastic, evaluator, scf_log)}
+        points.append(entry)
+        if store is not None and world().rank == 0:
+            store.add(entry, replaces=_at(j, amp))
+        s = np.array(entry["stress_Ha_per_bohr3"]) * HA_PER_BOHR3_GPA
+        say(f"[{n}/{len(plan)}] {label}: stress (GPa) xx {s[0, 0]:+.3f} yy {s[1, 1]:+.3f} "
+            f"zz {s[2, 2]:+.3f} yz {s[1, 2]:+.3f} xz {s[0, 2]:+.3f} xy {s[0, 1]:+.3f}; "
+            f"{entry['internal_moves']} internal moves, {entry['scf_iterations']} SCF iterations")
+    return points, resumed
+
+
 def elastic_constants(crystal: Crystal, settings: GroundStateSettings | None = None,
                       elastic: ElasticSettings | None = None, *,
                       evaluator: Evaluator | None = None, restart_file=None,
@@ -448,28 +473,12 @@ def elastic_constants(crystal: Crystal, settings: GroundStateSettings | None = N
         store = RecordLog(restart_file, STRAIN_POINTS, _fingerprint(crystal, settings, elastic),
                           accept_mismatch=accept_mismatch)
     plan = [(-1, 0.0)] + [(j, a) for j in components for a in elastic.amplitudes]
-    points, messages, resumed = [], [], 0
+    messages = []
     if store is not None and store.mismatches:
         messages.append("the restart file was made for another calculation, accepted on "
                         "request: " + "; ".join(store.mismatches))
-    for n, (j, amp) in enumerate(plan, start=1):
-        found = store.find(_at(j, amp)) if store is not None else None
-        label = "unstrained" if j < 0 else f"{_VOIGT_LABELS[j]} {amp:+.4f}"
-        if found is not None and found.get("converged"):
-            points.append(found)
-            resumed += 1
-            say(f"[{n}/{len(plan)}] {label}: taken from the restart file")
-            continue
-        cell = crystal if j < 0 else _strained(crystal, j, amp)
-        entry = {"strain_component": j + 1, "amplitude": amp,
-                 **_evaluate_point(cell, settings, elastic, evaluator, scf_log)}
-        points.append(entry)
-        if store is not None and world().rank == 0:
-            store.add(entry, replaces=_at(j, amp))
-        s = np.array(entry["stress_Ha_per_bohr3"]) * HA_PER_BOHR3_GPA
-        say(f"[{n}/{len(plan)}] {label}: stress (GPa) xx {s[0, 0]:+.3f} yy {s[1, 1]:+.3f} "
-            f"zz {s[2, 2]:+.3f} yz {s[1, 2]:+.3f} xz {s[0, 2]:+.3f} xy {s[0, 1]:+.3f}; "
-            f"{entry['internal_moves']} internal moves, {entry['scf_iterations']} SCF iterations")
+    points, resumed = _run_points(crystal, settings, elastic, plan, store, evaluator, scf_log,
+                                  say)
     relaxed = fit_stress_strain(pattern, _lines(points, "stress_Ha_per_bohr3"))
     clamped = fit_stress_strain(pattern, _lines(points, "clamped_stress_Ha_per_bohr3"))
     converged = all(p["converged"] for p in points)

@@ -257,3 +257,22 @@ def test_shifted_mesh_of_an_fcc_cell_is_refused_with_its_reason():
     # a simple-cubic cell keeps all its operations on a shifted mesh: accepted
     check_mesh_symmetry(pwsolid.simple_cubic(5.0, "Po"),
                         pwsolid.GroundStateSettings(kpoint_shift=(0.5, 0.5, 0.5)))
+
+
+def test_a_killed_run_resumes_without_recomputing_its_finished_points(tmp_path):
+    si = pwsolid.diamond(10.26, "Si")
+    model = _Harmonic(si, pwsolid_cubic(5.6e-3, 2.2e-3, 2.7e-3))
+
+    def dies_after_four(crystal, previous):
+        if model.calls == 4:
+            raise KeyboardInterrupt        # the run is killed during its fifth point
+        return model(crystal, previous)
+
+    restart = tmp_path / "si.elastic-points.json"
+    elastic = ElasticSettings(relax_internal=False)
+    settings = pwsolid.GroundStateSettings(kpoint_shift=(0, 0, 0))
+    with pytest.raises(KeyboardInterrupt):
+        elastic_constants(si, settings, elastic, evaluator=dies_after_four, restart_file=restart)
+    res = elastic_constants(si, settings, elastic, evaluator=model, restart_file=restart)
+    assert res.resumed_points == 4 and model.calls == 9       # 1 + 2 strains x 4 amplitudes
+    assert np.allclose(res.relaxed.matrix, model.c, atol=1e-12)
