@@ -347,8 +347,9 @@ class ElasticResult:
         return doc
 
     def summary_lines(self) -> list[str]:
-        lines = [f"Elastic constants of {self.symmetry} ({'converged' if self.converged else 'NOT converged'}"
-                 f", {len(self.points)} strain points):"]
+        state = "converged" if self.converged else "NOT converged"
+        lines = [f"Elastic constants of {self.symmetry} ({state}, {len(self.points)} strain "
+                 "points):"]
         clamped = self.clamped_constants_gpa
         for name, value in self.constants_gpa.items():
             extra = (f"   (clamped ions {clamped[name]:8.2f})"
@@ -358,8 +359,9 @@ class ElasticResult:
         if self.internal_strain is not None:
             lines.append(f"  internal-strain parameter zeta = {self.internal_strain:.3f}")
         m = self.averages.as_dict("GPa", HA_PER_BOHR3_GPA)
-        lines.append(f"  bulk modulus {m['bulk_hill_GPa']:.2f} GPa (Voigt {m['bulk_voigt_GPa']:.2f}, "
-                     f"Reuss {m['bulk_reuss_GPa']:.2f}); shear modulus {m['shear_hill_GPa']:.2f} "
+        lines.append(f"  bulk modulus {m['bulk_hill_GPa']:.2f} GPa (Voigt "
+                     f"{m['bulk_voigt_GPa']:.2f}, Reuss {m['bulk_reuss_GPa']:.2f}); shear "
+                     f"modulus {m['shear_hill_GPa']:.2f} "
                      f"GPa (Voigt {m['shear_voigt_GPa']:.2f}, Reuss {m['shear_reuss_GPa']:.2f})")
         lines.append(f"  Young's modulus {m['young_hill_GPa']:.2f} GPa, Poisson ratio "
                      f"{m['poisson_ratio_hill']:.3f} (Hill)")

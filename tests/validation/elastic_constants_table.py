@@ -3,6 +3,7 @@
 
 Run:  python tests/validation/elastic_constants_table.py [Si] [Al] [--cutoff 20] [--mesh 8]
                                                          [--strains 2] [--width 0.01]
+                                                         [--largest 0.01]
 
 For each crystal: a 7-point equation-of-state scan (+-4 % of volume) finds a0 and B0 at
 the settings; the elastic constants are computed at that a0 (strains up to 1 %, internal
@@ -35,7 +36,7 @@ CASES = {
 }
 
 
-def run(name, cutoff=None, mesh=None, strains=2, width=0.01):
+def run(name, cutoff=None, mesh=None, strains=2, width=0.01, largest=0.01):
     build, species, a, pp, cut, m, smearing, measured = CASES[name]
     cut, m = cutoff or cut, mesh or m
     extra = {} if smearing == "none" else {"smearing": smearing, "smearing_width": width}
@@ -48,14 +49,15 @@ def run(name, cutoff=None, mesh=None, strains=2, width=0.01):
     a0 = scan.lattice_constants["a"]
     t1 = time.time()
     res = elastic_constants(build(a0, species), settings,
-                            ElasticSettings(largest_strain=0.01, strains_per_sign=strains),
+                            ElasticSettings(largest_strain=largest, strains_per_sign=strains),
                             log=print)
     t2 = time.time()
     c, cl = res.constants_gpa, res.clamped_constants_gpa
     b = (c["C11"] + 2 * c["C12"]) / 3
     zeta = "-" if res.internal_strain is None else f"{res.internal_strain:.3f}"
     print("\n".join(res.summary_lines()))
-    print(f"\n| {name} | {cut:g} | {m}^3 | {a0 * BOHR_ANGSTROM:.4f} | {c['C11']:.1f} "
+    how = f"{m}^3, {smearing} {width:g} Ha, +-{100 * largest:g} %"
+    print(f"\n| {name} | {cut:g} | {how} | {a0 * BOHR_ANGSTROM:.4f} | {c['C11']:.1f} "
           f"({measured['C11']}) | {c['C12']:.1f} ({measured['C12']}) | {c['C44']:.1f} "
           f"({measured['C44']}) | {cl['C44']:.1f} | {zeta} | {b:.1f} | {scan.fit.b0_gpa:.1f} "
           f"| {100 * (b / scan.fit.b0_gpa - 1):+.1f} % | {t1 - t0:.0f} + {t2 - t1:.0f} s |")
@@ -68,8 +70,9 @@ if __name__ == "__main__":
     parser.add_argument("--mesh", type=int, help="k-point mesh per direction (through Gamma)")
     parser.add_argument("--strains", type=int, default=2, help="amplitudes per sign")
     parser.add_argument("--width", type=float, default=0.01, help="smearing width (Ha), metals")
+    parser.add_argument("--largest", type=float, default=0.01, help="largest strain")
     args = parser.parse_args()
-    print("| solid | cutoff (Ha) | mesh | a0 (angstrom) | C11 (measured) | C12 | C44 | "
-          "C44 clamped | zeta | (C11+2C12)/3 | EOS B0 | difference | time (scan + strains) |")
+    print("| solid | cutoff (Ha) | mesh, smearing, strain | a0 (angstrom) | C11 (measured) | "
+          "C12 | C44 | C44 clamped | zeta | (C11+2C12)/3 | EOS B0 | difference | time (scan + strains) |")
     for name in args.names or list(CASES):
-        run(name, args.cutoff, args.mesh, args.strains, args.width)
+        run(name, args.cutoff, args.mesh, args.strains, args.width, args.largest)

@@ -4,8 +4,9 @@ the equation of state at the same settings.
 Settings: LDA, the bundled Goedecker-Teter-Hutter file, 16 Ha, a 4x4x4 mesh through
 Gamma (a half-step shifted mesh is refused for strain, see the workflow), strains of
 +-1 % (one per sign), at the lattice constant of a 7-point equation-of-state scan (+-4 %
-of volume) of the same settings; a 5-point scan over +-3 % gave a B0 1.2 GPa lower (fixed-
-cutoff energies jump as plane waves cross the cutoff, and fewer, closer points feel it more). 16 Ha, not less: the stress is a derivative at a fixed plane-wave set
+of volume) of the same settings; a 5-point scan over +-3 % gave a B0 1.2 GPa lower
+(fixed-cutoff energies jump as plane waves cross the cutoff, and fewer, closer points
+feel it more). 16 Ha, not less: the stress is a derivative at a fixed plane-wave set
 and the scan's energies are at a fixed cutoff; at 12 Ha the two bulk moduli differed by
 6 % (94.5 against 100.4 GPa, the basis-set stress still changing with volume), at 16 Ha
 by 1.2 % (96.6 against 95.4 GPa, measured 2026-12-05).
