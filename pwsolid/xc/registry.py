@@ -26,6 +26,7 @@ from .extra_lda import (hedin_lundqvist_correlation, hedin_lundqvist_correlation
                         wigner_correlation_polarized)
 from .gga import (pbe_correlation, pbe_correlation_polarized, pbe_exchange,
                   pbe_exchange_polarized)
+from .pw92_precise import pw92_precise_correlation, pw92_precise_correlation_polarized
 from .lda import (DENSITY_FLOOR, pw92_correlation, pw92_correlation_polarized, pz81_correlation,
                   pz81_correlation_polarized, slater_exchange, slater_exchange_polarized)
 
@@ -336,15 +337,22 @@ _CORRELATIONS = {
     "lda-pw92": Functional(
         "pw92-correlation", "Perdew-Wang 1992 correlation",
         pw92_correlation, pw92_correlation_polarized),
+    "lda-pw92-precise": Functional(
+        "pw92-precise-correlation",
+        "Perdew-Wang 1992 correlation with the PBE form's more precise A constants",
+        pw92_precise_correlation, pw92_precise_correlation_polarized),
     "lda-vwn": Functional(
         "vwn-correlation", "Vosko-Wilk-Nusair 1980 correlation (fit to Ceperley-Alder)",
         vwn_correlation, vwn_correlation_polarized),
     "lda-wigner": Functional(
-        "wigner-correlation", "Wigner 1934 correlation, independent of spin polarisation",
+        "wigner-correlation",
+        "Wigner 1934 correlation; spin-polarised form pwsolid's own construction "
+        "(taken independent of zeta, no published source)",
         wigner_correlation, wigner_correlation_polarized),
     "lda-hedin-lundqvist": Functional(
         "hedin-lundqvist-correlation",
-        "Hedin-Lundqvist 1971 correlation, spin-scaled ferromagnetic branch",
+        "Hedin-Lundqvist 1971 correlation; spin-polarised form pwsolid's own "
+        "construction (ferromagnetic branch by spin scaling, no published source)",
         hedin_lundqvist_correlation, hedin_lundqvist_correlation_polarized),
     "lda-von-barth-hedin": Functional(
         "von-barth-hedin-correlation", "von Barth-Hedin 1972 correlation",
@@ -367,11 +375,12 @@ PBE_EXCHANGE = gradient_functional(
     pbe_exchange_polarized, lda_parent="slater-exchange")
 #: Perdew-Burke-Ernzerhof 1996 correlation (on Perdew-Wang 1992) as a part of PBE.
 PBE_CORRELATION = gradient_functional(
-    "pbe-correlation", "Perdew-Burke-Ernzerhof 1996 correlation on Perdew-Wang 1992",
-    pbe_correlation, pbe_correlation_polarized, lda_parent="lda-pw92")
+    "pbe-correlation",
+    "Perdew-Burke-Ernzerhof 1996 correlation on Perdew-Wang 1992 (precise A constants)",
+    pbe_correlation, pbe_correlation_polarized, lda_parent="lda-pw92-precise")
 _REGISTRY["pbe"] = combine_exchange_correlation(
     "pbe", "GGA: Perdew-Burke-Ernzerhof 1996 exchange and correlation", PBE_EXCHANGE,
-    PBE_CORRELATION, lda_parent="lda-pw92")
+    PBE_CORRELATION, lda_parent="lda-pw92-precise")
 _REGISTRY["pbe-exchange"] = gradient_functional(
     "pbe-exchange", "Perdew-Burke-Ernzerhof 1996 exchange only, no correlation",
     pbe_exchange, pbe_exchange_polarized, lda_parent="slater-exchange",
