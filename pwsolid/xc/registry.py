@@ -391,6 +391,9 @@ FUNCTIONALS: tuple[str, ...] = tuple(_REGISTRY)
 
 #: Prefix of a functional specification naming a Python file, ``"file:/path/x.py"``.
 FILE_PREFIX = "file:"
+#: Prefix of a functional specification naming Libxc functionals, ``"libxc:gga_x_pbe"``
+#: (:mod:`pwsolid.xc.libxc_bridge`).
+LIBXC_PREFIX = "libxc:"
 
 # Functionals registered at run time under a name of their own (register_functional).
 _USER_REGISTRY: dict[str, Functional] = {}
@@ -431,9 +434,11 @@ def register_functional(functional: Functional, *, replace: bool = False) -> Fun
         raise InputError("register_functional takes a Functional", key=_KEY,
                          value=functional, has_value=True)
     key = _normalized(functional.name)
-    if not key or key.startswith(FILE_PREFIX) or any(c.isspace() for c in key):
+    if (not key or key.startswith((FILE_PREFIX, LIBXC_PREFIX))
+            or any(c.isspace() for c in key)):
         raise InputError("a functional's name must be non-empty, without blanks and not "
-                         f"start with '{FILE_PREFIX}'", key=_KEY, value=functional.name)
+                         f"start with '{FILE_PREFIX}' or '{LIBXC_PREFIX}'", key=_KEY,
+                         value=functional.name)
     if key in _REGISTRY:
         raise InputError("this name belongs to a built-in functional; choose another",
                          key=_KEY, value=functional.name)
@@ -457,6 +462,8 @@ def get_functional(spec: str | UnpolarizedKernel | Functional) -> Functional:
     spec : str, callable or Functional
         A name of :data:`FUNCTIONALS` or one registered with
         :func:`register_functional` (case and surrounding blanks ignored);
+        ``"libxc:<name>[+<name>...]"``, functionals of the Libxc C library
+        (:func:`pwsolid.xc.libxc_bridge.libxc_functional`, LDA and GGA families);
         ``"file:/path/to/functional.py"``, a Python file loaded with
         :func:`pwsolid.xc.load_user_functional` (this runs the file's code; a
         relative path is taken from the working directory, so callers holding an
@@ -482,12 +489,17 @@ def get_functional(spec: str | UnpolarizedKernel | Functional) -> Functional:
             from .user import load_user_functional   # user imports this module
 
             return load_user_functional(text[len(FILE_PREFIX):].strip())
+        if text.lower().startswith(LIBXC_PREFIX):
+            from .libxc_bridge import libxc_functional   # the bridge imports this module
+
+            return libxc_functional(text)
         key = _normalized(text)
         found = _REGISTRY.get(key) or _USER_REGISTRY.get(key)
         if found is None:
             raise InputError("unknown exchange-correlation functional; valid names are "
                              + ", ".join(repr(name) for name in available_functionals())
-                             + f", or '{FILE_PREFIX}path/to/functional.py'",
+                             + f", '{LIBXC_PREFIX}<Libxc name>' or "
+                             f"'{FILE_PREFIX}path/to/functional.py'",
                              key=_KEY, value=spec)
         return found
     if callable(spec):
