@@ -433,7 +433,7 @@ def libxc_functional(spec: str) -> Functional:
     for part in parts[1:]:
         total = combine_exchange_correlation(full_name, "", total, part, origin=origin)
     description = "Libxc " + library.version + ": " + " + ".join(
-        c.description for c in components)
+        f"{c.name} ({c.description})" for c in components)
     if sorted(kinds) == ["correlation", "exchange"]:
         exchange, correlation = (parts if kinds[0] == "exchange" else parts[::-1])
         return replace(total, description=description, exchange=exchange,
