@@ -101,7 +101,8 @@ class Functional:
         given: the other part is absent (e.g. ``slater-exchange`` has no
         correlation).
     origin : str
-        Where it came from: ``"built-in"``, ``"file:<path>"`` or ``"callable"``.
+        Where it came from: ``"built-in"``, ``"file:<path>"``, ``"callable"`` or
+        ``"libxc <version>"``.
     gradient, gradient_polarized : GradientKernel, PolarizedGradientKernel or None
         Given for a functional that depends on the density gradient
         (:attr:`needs_gradients`); its ``unpolarized``/``polarized`` kernels are then
