@@ -654,9 +654,11 @@ def load_density(path, setup=None, *, accept_mismatch: bool = False) -> dict:
 
 
 def _functional_identity(c) -> str:
-    """The functional's name; a Libxc functional also names the Libxc version, since
-    another version may give other values."""
-    from .xc.libxc_bridge import is_libxc_spec, libxc_version
+    """The functional's name; a Libxc functional by its canonical name (however it was
+    spelt) and the Libxc version, since another version may give other values."""
+    from .xc.libxc_bridge import is_libxc_spec, libxc_functional, libxc_version
 
     text = str(c.settings.as_dict()["functional"])
-    return f"{text} (Libxc {libxc_version()})" if is_libxc_spec(text) else text
+    if not is_libxc_spec(text):
+        return text
+    return f"{libxc_functional(text).name} (Libxc {libxc_version()})"

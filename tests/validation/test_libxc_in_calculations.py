@@ -52,6 +52,9 @@ def test_fingerprint_and_result_name_the_libxc_version():
         f"libxc:lda_x+lda_c_pz (Libxc {libxc_version()})")
     doc = ground_state_document(result)
     assert doc["exchange_correlation"]["origin"] == f"libxc {libxc_version()}"
+    # another spelling of the same functionals is the same calculation
+    respelt = settings.replace(functional="LIBXC: XC_LDA_X + lda_c_pz")
+    assert store.fingerprint(silicon, respelt, result.setup.pseudopotentials) == print_
 
 
 def test_input_file_takes_a_libxc_functional_and_refuses_a_hybrid(tmp_path):
@@ -68,3 +71,17 @@ def test_input_file_takes_a_libxc_functional_and_refuses_a_hybrid(tmp_path):
     with pytest.raises(InputError, match="exact \\(Fock\\) exchange") as info:
         load_input(bad)
     assert "bad.toml" in str(info.value) and "exchange_correlation.functional" in str(info.value)
+
+
+@pytest.mark.slow
+def test_spin_polarised_libxc_gga_gives_the_builtin_energy():
+    # a silicon cell held at a moment of 2 electrons: zeta between 0 and 1 everywhere,
+    # so every spin-polarised kernel and gradient invariant is exercised
+    silicon = diamond(SILICON_A, "Si")
+    settings = SETTINGS.replace(spin_polarized=True, fixed_moment=2.0,
+                                smearing="fermi-dirac", smearing_width=0.01)
+    mine = ground_state(silicon, settings.replace(functional="pbe"))
+    theirs = ground_state(silicon, settings.replace(functional="libxc:gga_x_pbe+gga_c_pbe"))
+    assert mine.converged and theirs.converged
+    assert abs(mine.magnetization - 2.0) < 1e-8
+    assert theirs.free_energy == pytest.approx(mine.free_energy, abs=1e-8)
