@@ -9,6 +9,9 @@ the Libxc C library (CI installs Debian's libxc9 where it can).
 
 from __future__ import annotations
 
+import json
+
+import numpy as np
 import pytest
 
 from pwsolid.crystal import diamond
@@ -85,3 +88,20 @@ def test_spin_polarised_libxc_gga_gives_the_builtin_energy():
     assert mine.converged and theirs.converged
     assert abs(mine.magnetization - 2.0) < 1e-8
     assert theirs.free_energy == pytest.approx(mine.free_energy, abs=1e-8)
+
+
+def test_testbench_command_takes_a_libxc_functional(tmp_path, capsys):
+    from pwsolid.cli import main
+
+    assert main(["xc-testbench", "libxc:lda_x+lda_c_pw_mod", "--no-plots",
+                 "--output-dir", str(tmp_path)]) == 0
+    (report,) = tmp_path.glob("*.json")
+    doc = json.loads(report.read_text())
+    assert doc["functional"]["origin"] == f"libxc {libxc_version()}"
+    # Libxc's PW92 (PBE form) against pwsolid's Table I PW92: the A constants differ in
+    # the sixth digit, a few 1e-6 Ha at most on the testbench's range
+    differences = np.array(doc["correlation_differences_mHa"]["lda-pw92"], dtype=float)
+    assert np.nanmax(np.abs(differences)) < 0.01
+    assert main(["xc-testbench", "libxc:mgga_x_scan", "--no-plots",
+                 "--output-dir", str(tmp_path)]) == 3
+    assert "meta-GGA" in capsys.readouterr().err
