@@ -9,6 +9,7 @@ import pytest
 
 from pwsolid.config import load_input
 from pwsolid.errors import InputError
+from pwsolid.xc.libxc_bridge import libxc_available
 
 CRYSTAL = '[crystal]\nprototype = "diamond"\nlattice_constant = "5.43 angstrom"\nspecies = ["Si"]\n'
 EXPLICIT = ('[crystal]\nprototype = "explicit"\nlattice_constant = "5.43 angstrom"\n'
@@ -193,6 +194,16 @@ CASES = [
      "elastic_constants.strains_per_sign", "integer from 1 to 10"),
     ("elastic force threshold without unit", CRYSTAL + "[elastic_constants]\nforce_threshold = 1e-4\n",
      "elastic_constants.force_threshold", "needs its unit"),
+    # Libxc names: without the library the message says how to install it
+    ("unknown Libxc name", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:gga_c_pbee"\n',
+     "exchange_correlation.functional",
+     "'gga_c_pbe'" if libxc_available() else "apt-get install libxc9"),
+    ("Libxc meta-GGA", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:mgga_x_scan"\n',
+     "exchange_correlation.functional",
+     "is a meta-GGA" if libxc_available() else "apt-get install libxc9"),
+    ("Libxc hybrid", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:hyb_gga_xc_pbeh"\n',
+     "exchange_correlation.functional",
+     "exact (Fock) exchange" if libxc_available() else "apt-get install libxc9"),
 ]
 
 
