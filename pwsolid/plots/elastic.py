@@ -19,7 +19,7 @@ from . import PALETTE, new_axes, save_and_close
 __all__ = ["StressStrainPlot"]
 
 _LABELS = ("xx", "yy", "zz", "yz", "xz", "xy")
-#: Stress components that change by less than this share of a panel's largest change
+#: Stress components whose linear change is below this share of a panel's largest one
 #: are left out of it (they only say the symmetry holds; the JSON keeps them), and so
 #: are clamped-ion lines closer than this to the relaxed ones.
 _QUIET_SHARE = 0.03
@@ -60,9 +60,11 @@ class StressStrainPlot:
         fig = axes[0].figure
         for ax, (j, amps, rel, cl, coef, coef_c) in zip(axes, self.panels):
             fine = np.linspace(amps.min(), amps.max(), 60)
-            scale = max(float(np.ptp(rel, axis=0).max()), _SILENT_GPA)
+            # a component responds when its linear part over the strain range is visible
+            linear = np.abs(coef[1]) * np.abs(amps).max() / 100
+            scale = max(float(linear.max()), _SILENT_GPA)
             for i in range(6):
-                if np.ptp(rel[:, i]) < _QUIET_SHARE * scale:
+                if linear[i] < _QUIET_SHARE * scale:
                     continue
                 colour = PALETTE[i % len(PALETTE)]
                 curve = np.polynomial.polynomial.polyval(fine / 100, coef[:, i])
@@ -78,7 +80,7 @@ class StressStrainPlot:
                                zorder=3)
             ax.axhline(0.0, color="#8a8578", lw=0.6)
             ax.set_xlabel(f"strain $e_{{{_LABELS[j]}}}$ (%)")
-            ax.legend(fontsize=7.5, frameon=False, loc="upper left")
+            ax.legend(fontsize=7.5, frameon=False, loc="best")
         axes[0].set_ylabel("stress (GPa)")
         fig.suptitle(self.title, x=0.06, ha="left", fontweight="bold", fontsize=11.5)
         fig.tight_layout()
