@@ -494,7 +494,9 @@ def elastic_constants(crystal: Crystal, settings: GroundStateSettings | None = N
         messages.append(f"the unstrained cell is under {pressure * HA_PER_BOHR3_GPA:+.2f} GPa: "
                         "slopes of a pre-stressed cell differ from the elastic constants by "
                         "terms of the order of the pressure; start from the equilibrium "
-                        "lattice of these settings (equation-of-state or relax-structure)")
+                        "lattice of these settings, and if this cell is already an "
+                        "equation-of-state minimum, the pressure is the basis-set (Pulay) "
+                        "stress: raise basis.cutoff")
     zeta, zeta_points = (_zeta(crystal, points, components)
                          if elastic.relax_internal and _is_tetrahedral_pair(ops) else (None, ()))
     if not born_stability(relaxed.matrix)[0]:
