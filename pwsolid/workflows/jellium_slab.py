@@ -34,6 +34,7 @@ import numpy as np
 from scipy import fft as _fft
 
 from ..errors import ConvergenceWarning, InputError
+from ..parallel import single_threaded_blas
 from ..mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
 from ..xc import get_functional
 
@@ -203,13 +204,25 @@ def _fermi_level(eps: np.ndarray, electrons: float) -> tuple[float, int]:
     raise AssertionError("unreachable")
 
 
+def _parity(grid: SlabGrid) -> np.ndarray:
+    """exp(i G c/2) = (-1)^m for the orbitals' plane waves."""
+    m = np.rint(grid.g[grid.wave_index] * grid.length / (2 * math.pi)).astype(int)
+    return np.where(m % 2 == 0, 1.0, -1.0)
+
+
 def _hamiltonian(grid: SlabGrid, potential: np.ndarray) -> np.ndarray:
-    """Dense H_{GG'} = G^2/2 delta + V(G - G') on the orbitals' plane waves."""
+    """Dense H_{GG'} = G^2/2 delta + V(G - G') in plane waves exp(i G (z - c/2)).
+
+    The mirror-symmetric slab has a real potential even about c/2, whose Fourier
+    coefficients in the centred frame, V(G) exp(i G c/2), are real: H is real symmetric
+    (the imaginary rounding residue is dropped).
+    """
     size = grid.z.size
     vg = np.fft.fft(potential) / size
     idx = grid.wave_index
     diff = (idx[:, None] - idx[None, :]) % size
-    h = vg[diff]
+    sign = _parity(grid)
+    h = np.real(vg[diff]) * np.outer(sign, sign)
     h[np.diag_indices_from(h)] += 0.5 * grid.g[idx] ** 2
     return h
 
@@ -226,9 +239,11 @@ def _electrostatic(grid: SlabGrid, density: np.ndarray) -> tuple[np.ndarray, flo
 
 
 def _subbands(grid: SlabGrid, potential: np.ndarray):
-    eps, vecs = np.linalg.eigh(_hamiltonian(grid, potential))
+    with single_threaded_blas():
+        eps, vecs = np.linalg.eigh(_hamiltonian(grid, potential))
     mu, k = _fermi_level(eps, grid.electrons_per_area)
-    return eps[:k], vecs[:, :k].T, mu
+    # back from the centred frame: c_G = c'_G exp(-i G c/2)
+    return eps[:k], vecs[:, :k].T * _parity(grid), mu
 
 
 def _orbitals(grid: SlabGrid, coefficients: np.ndarray) -> np.ndarray:
