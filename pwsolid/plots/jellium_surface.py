@@ -16,7 +16,18 @@ def _k_f(rs: float) -> float:
     return (9 * math.pi / 4) ** (1 / 3) / rs
 
 
-class SurfaceProfilePlot:
+class _Figure:
+    """``save(stem, formats)`` for a plot object whose ``plot()`` returns (fig, axes)."""
+
+    def plot(self):
+        raise NotImplementedError
+
+    def save(self, stem, formats=("png", "svg")):
+        fig, _ = self.plot()
+        return save_and_close(fig, stem, formats)
+
+
+class SurfaceProfilePlot(_Figure):
     """n(z)/n_bar against k_F z (z = 0 at the background edge, vacuum at z > 0):
     the Friedel oscillations inside and the spill-out, one line per r_s."""
 
@@ -42,12 +53,8 @@ class SurfaceProfilePlot:
         ax.legend(fontsize=8)
         return fig, ax
 
-    def save(self, stem, formats=("png", "svg")):
-        fig, _ = self.plot()
-        return save_and_close(fig, stem, formats)
 
-
-class SurfaceEnergyPlot:
+class SurfaceEnergyPlot(_Figure):
     """Surface energy and its exchange-correlation part (erg/cm^2) against r_s, with
     the non-self-consistent xc parts of the extra functionals."""
 
@@ -78,12 +85,8 @@ class SurfaceEnergyPlot:
         ax.legend(fontsize=7.5)
         return fig, ax
 
-    def save(self, stem, formats=("png", "svg")):
-        fig, _ = self.plot()
-        return save_and_close(fig, stem, formats)
 
-
-class SurfaceConvergencePlot:
+class SurfaceConvergencePlot(_Figure):
     """Change of sigma and sigma_xc from the last value of each scan, one panel per
     setting (thickness, vacuum, cutoff)."""
 
@@ -113,12 +116,8 @@ class SurfaceConvergencePlot:
                     label="work function (meV)")
             ax.set_yscale("log")
             ax.set_xlabel(self._UNITS.get(key, key))
-        axes[0].set_ylabel("|change from last| (erg/cm^2)")
+        axes[0].set_ylabel("|change from last| (erg/cm^2; meV)")
         axes[0].legend(fontsize=7.5)
         fig.suptitle(f"Jellium surface convergence, r_s = {self.convergence.rs:g}, "
                      f"{self.convergence.base.functional}", fontsize=10)
         return fig, axes
-
-    def save(self, stem, formats=("png", "svg")):
-        fig, _ = self.plot()
-        return save_and_close(fig, stem, formats)
