@@ -30,6 +30,7 @@ settings skips them, and a file of other settings is refused with the difference
 from __future__ import annotations
 
 import math
+import numbers
 import time
 from dataclasses import dataclass, field, replace
 
@@ -96,13 +97,17 @@ class SurfaceSettings:
                                       ("vacuum", self.vacuum, 0.5, 50.0),
                                       ("cutoff", self.cutoff, 2.0, 2000.0),
                                       ("tolerance", self.tolerance, 1e-14, 1e-3)):
-            if not (isinstance(value, (int, float)) and math.isfinite(value)
+            if not (isinstance(value, numbers.Real) and not isinstance(value, bool)
+                    and math.isfinite(value)
                     and low <= value <= high):
                 raise InputError(f"must be a number between {low:g} and {high:g}",
                                  key=key, value=value)
-        if not (isinstance(self.thickness_samples, int) and 1 <= self.thickness_samples <= 32):
+        samples = self.thickness_samples
+        if not (isinstance(samples, numbers.Integral) and not isinstance(samples, bool)
+                and 1 <= samples <= 32):
             raise InputError("must be a whole number between 1 and 32",
-                             key="thickness_samples", value=self.thickness_samples)
+                             key="thickness_samples", value=samples)
+        object.__setattr__(self, "thickness_samples", int(samples))
 
     def fingerprint(self) -> Fingerprint:
         values = {"schema": JELLIUM_SURFACE_SCHEMA, "functional": self.functional,
@@ -225,7 +230,9 @@ class SurfacePoint:
                                                          for p in _PARTS},
                           "work_function_eV": self.work_function[i] * HARTREE_EV,
                           "scf_iterations": self.iterations[i]}
-                         for i, t in enumerate(self.thicknesses)]}
+                         for i, t in enumerate(self.thicknesses)],
+               "profile_of_the_thinnest_slab": {
+                   k: [round(float(x), 10) for x in v] for k, v in self.profile.items()}}
         return doc
 
 
