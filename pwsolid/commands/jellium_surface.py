@@ -20,7 +20,8 @@ def register(subparsers) -> None:
                     "thicknesses, work function, Budd-Vannimenus check, density profile.")
     p.add_argument("--radii", default="2,3,4,5,6", help="r_s values in bohr, comma separated")
     p.add_argument("--functional", default="lda-pw92",
-                   help="self-consistent functional (local or gradient), name or file:PATH")
+                   help="self-consistent functional (local, gradient or meta-GGA), name or "
+                        "file:PATH")
     p.add_argument("--also", default="",
                    help="functionals evaluated on the self-consistent density, comma "
                         "separated (e.g. pbe,scan,r2scan); meta-GGAs get the orbitals' tau")

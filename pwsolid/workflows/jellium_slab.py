@@ -166,6 +166,8 @@ class SlabState:
     converged: bool
     iterations: int
     history: tuple = field(repr=False)
+    #: tau(z) when the solver computed it (the meta-GGA slab); None: from the subbands
+    kinetic_density: np.ndarray | None = field(default=None, repr=False)
 
     @property
     def occupations(self) -> np.ndarray:
@@ -269,8 +271,11 @@ def kinetic_energy_density(grid: SlabGrid, state: "SlabState") -> np.ndarray:
     -----
     Subband j contributes (mu - eps_j)/pi |psi_j'|^2 / 2 from the z motion and
     (mu - eps_j)^2/(2 pi) |psi_j|^2 from the in-plane free-electron disc
-    (sum over k_par of k_par^2/2 for both spins).
+    (sum over k_par of k_par^2/2 for both spins). A meta-GGA slab, whose subbands do
+    not separate, carries its own tau (``state.kinetic_density``).
     """
+    if state.kinetic_density is not None:
+        return state.kinetic_density
     w = state.fermi_level - state.subbands
     size = grid.z.size
     coeff = np.fft.fft(state.orbitals, axis=1) / size

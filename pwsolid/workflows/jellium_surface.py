@@ -13,7 +13,9 @@ with ``N = n_bar L`` electrons per area and the uniform-gas energies per electro
 the same functional. Functionals named in ``extra_functionals`` (e.g. PBE, or the
 meta-GGAs ``scan``/``r2scan`` once registered) are evaluated on the self-consistent
 density (and, for a meta-GGA, on the kinetic-energy density of the same orbitals):
-their sigma_xc is non-self-consistent, as in the tables of the meta-GGA papers.
+their sigma_xc is non-self-consistent, as in the tables of the meta-GGA papers. A
+meta-GGA may also be the self-consistent functional: its slab is solved by
+:mod:`.jellium_slab_meta`, where the in-plane motion no longer separates.
 
 Also per sample: the work function ``v_es(vacuum middle) - mu`` (the exchange-
 correlation potential is negligible there for the vacuum widths used), the
@@ -42,6 +44,7 @@ from ..units import HA_PER_BOHR2_ERG_PER_CM2, HARTREE_EV
 from ..xc import get_functional
 from .jellium_slab import (SlabState, bulk_energy_per_electron, fermi_wavevector,
                            kinetic_energy_density, slab_grid, solve_slab, uniform_density)
+from .jellium_slab_meta import solve_meta_slab
 
 __all__ = ["JELLIUM_SURFACE_SCHEMA", "SurfaceSettings", "SurfacePoint", "JelliumSurfaceStudy",
            "SurfaceConvergence", "jellium_surface", "jellium_surface_point",
@@ -61,7 +64,7 @@ class SurfaceSettings:
     Attributes
     ----------
     functional : str
-        Self-consistent functional: any registered local or gradient functional.
+        Self-consistent functional: any registered local, gradient or meta-GGA functional.
     extra_functionals : tuple of str
         Evaluated on the self-consistent density and orbitals (non-self-consistent).
     thickness : float
@@ -86,7 +89,6 @@ class SurfaceSettings:
 
     def __post_init__(self):
         fn = _named(self.functional, "functional")
-        _self_consistent(fn)
         object.__setattr__(self, "functional", fn.name if fn.origin == "built-in"
                            else str(self.functional))
         extras = tuple(str(x).strip() for x in self.extra_functionals if str(x).strip())
@@ -127,13 +129,12 @@ def _named(spec, key: str):
         raise InputError(exc.reason, key=key, value=spec) from None
 
 
-def _self_consistent(fn):
+def _solve(grid, settings: "SurfaceSettings", log=None) -> SlabState:
+    """The separable slab, or the meta-GGA slab for a functional of tau."""
+    fn = get_functional(settings.functional)
     if getattr(fn, "needs_kinetic_density", False):
-        raise InputError("a meta-GGA is not solved self-consistently in the slab (its "
-                         "kinetic-energy-density term mixes in-plane and normal motion); "
-                         "solve with an LDA or GGA and name the meta-GGA among the extra "
-                         "functionals, evaluated on that density", key="functional",
-                         value=fn.name)
+        return solve_meta_slab(grid, fn, tolerance=settings.tolerance, log=log)
+    return solve_slab(grid, fn, tolerance=settings.tolerance, log=log)
 
 
 def xc_energy_per_area(functional, state: SlabState) -> float:
@@ -299,7 +300,7 @@ def jellium_surface_point(rs: float, settings: SurfaceSettings = SurfaceSettings
         thickness = wavelength * (settings.thickness + 0.5 * k / settings.thickness_samples)
         grid = slab_grid(rs, thickness, max(settings.vacuum * wavelength, 12.0),
                          settings.cutoff * 0.5 * k_f ** 2)
-        state = solve_slab(grid, settings.functional, tolerance=settings.tolerance, log=log)
+        state = _solve(grid, settings, log=log)
         electrons = grid.electrons_per_area
         per_electron = {"kinetic": bulk["kinetic"], "electrostatic": 0.0,
                         "exchange_correlation": bulk["exchange_correlation"],
