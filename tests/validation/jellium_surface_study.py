@@ -7,7 +7,8 @@
 2. The table at the defaults for r_s 2, 2.5, 3, 4, 5, 6 with LDA (PW92) self-consistent
    and PBE (and SCAN, r2SCAN when registered) evaluated on its density, against
    shared/REFERENCES.md 11e.
-3. Work functions with Wigner's correlation against Lang and Kohn, PRB 3, 1215 (1971)
+3. Self-consistent SCAN and r2SCAN slabs when registered.
+4. Work functions with Wigner's correlation against Lang and Kohn, PRB 3, 1215 (1971)
    (from memory).
 
 The figures are recorded in the README ("Jellium surfaces") with the date.
@@ -77,6 +78,20 @@ def table(out: Path) -> None:
     SurfaceEnergyPlot.from_study(study).save(out / "jellium-surface.energy")
 
 
+def self_consistent_meta(out: Path) -> None:
+    for name in ("scan", "r2scan"):
+        if name not in available_functionals():
+            continue
+        study = jellium_surface((2.0, 3.0, 4.0, 6.0), SurfaceSettings(functional=name))
+        print(f"\n### Self-consistent {name} slabs\n")
+        print("| r_s | sigma | xc | W (eV) | BV step / bulk (mHa) |")
+        print("|---|---|---|---|---|")
+        for p in study.points:
+            print(f"| {p.rs:g} | {p.mean() * ERG:.1f} | {p.mean('exchange_correlation') * ERG:.1f}"
+                  f" | {np.mean(p.work_function) * HARTREE_EV:.3f} | "
+                  f"{1e3 * np.mean(p.edge_potential_step):.3f} / {1e3 * p.budd_vannimenus:.3f} |")
+
+
 def work_functions() -> None:
     study = jellium_surface(tuple(LANG_KOHN_WORK_FUNCTION),
                             SurfaceSettings(functional="lda-wigner"))
@@ -96,6 +111,7 @@ def main() -> None:
     convergence(out)
     table(out)
     work_functions()
+    self_consistent_meta(out)
 
 
 if __name__ == "__main__":

@@ -299,7 +299,7 @@ def test_self_consistent_meta_gga_slab(name):
     if name not in available_functionals():
         pytest.skip(f"'{name}' is not registered (the meta-GGA branch adds it)")
     _edge_force_check(name, 4.0, 2e-6)
-    p = js.jellium_surface_point(3.0, js.SurfaceSettings(functional=name, thickness=6.0,
+    p = js.jellium_surface_point(3.0, js.SurfaceSettings(functional=name, thickness=4.0,
                                                          thickness_samples=2))
     assert p.converged
     assert abs(np.mean(p.edge_potential_step) / p.budd_vannimenus - 1) < 0.01
