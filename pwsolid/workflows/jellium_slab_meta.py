@@ -181,8 +181,8 @@ def solve_meta_slab(grid: SlabGrid, functional, *, tolerance: float = 1e-10,
 
     Starts from the slab of the functional's uniform-gas parent (or PW92); ``nodes``
     Chebyshev-Lobatto points in q = k_par^2 / 2. Below ``vacuum_density`` (bohr^-3) the
-    functional is switched off (see ``_meta_terms``); its share of E_xc there is below
-    0.1 % of the surface term at r_s 2 to 6. Returns a :class:`SlabState` whose
+    functional is switched off (see ``_meta_terms``); for SCAN and r2SCAN its share of
+    E_xc there is below 1e-4 of sigma_xc at r_s 2 to 6 (measured). Returns a :class:`SlabState` whose
     ``kinetic_density`` is the self-consistent tau and whose ``subbands`` and
     ``orbitals`` are those at k_par = 0; ``xc_potential`` is the multiplicative part.
     """
