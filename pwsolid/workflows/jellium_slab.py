@@ -294,7 +294,8 @@ def solve_slab(grid: SlabGrid, functional="lda-pw92", *, tolerance: float = 1e-1
     ----------
     grid : SlabGrid
     functional : str or Functional
-        Any registered local or gradient functional (or ``file:...``).
+        Any registered functional (or ``file:...``); a meta-GGA is handed to
+        :func:`.jellium_slab_meta.solve_meta_slab`.
     tolerance : float
         Stop when int |n_out - n_in| dz / N falls below it.
     initial_density : (M,) float64 or None
@@ -309,6 +310,11 @@ def solve_slab(grid: SlabGrid, functional="lda-pw92", *, tolerance: float = 1e-1
     import warnings
 
     fn = get_functional(functional)
+    if getattr(fn, "needs_kinetic_density", False):
+        from .jellium_slab_meta import solve_meta_slab   # it builds on this module
+
+        return solve_meta_slab(grid, fn, tolerance=tolerance, max_iterations=max_iterations,
+                               log=log)
     size, dz = grid.z.size, grid.spacing
     n_in = _initial_density(grid) if initial_density is None else np.array(initial_density)
     k0 = thomas_fermi_wavevector(grid.mean_density)

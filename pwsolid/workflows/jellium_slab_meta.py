@@ -34,7 +34,8 @@ from ..errors import ConvergenceError, ConvergenceWarning
 from ..mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
 from ..parallel import single_threaded_blas
 from ..xc import get_functional
-from .jellium_slab import SlabGrid, SlabState, _electrostatic, _parity, solve_slab
+from .jellium_slab import (SlabGrid, SlabState, _electrostatic, _parity,
+                           kinetic_energy_density, solve_slab)
 
 __all__ = ["solve_meta_slab", "VACUUM_DENSITY"]
 
@@ -190,7 +191,6 @@ def solve_meta_slab(grid: SlabGrid, functional, *, tolerance: float = 1e-10,
     size, dz = grid.z.size, grid.spacing
     electrons = grid.electrons_per_area
     start = solve_slab(grid, fn.lda_parent or "lda-pw92", tolerance=1e-6)
-    from .jellium_slab import kinetic_energy_density
     n_in = start.density
     tau_in = kinetic_energy_density(grid, start)
     q_top = 1.5 * (start.fermi_level - start.subbands[0])

@@ -44,7 +44,6 @@ from ..units import HA_PER_BOHR2_ERG_PER_CM2, HARTREE_EV
 from ..xc import get_functional
 from .jellium_slab import (SlabState, bulk_energy_per_electron, fermi_wavevector,
                            kinetic_energy_density, slab_grid, solve_slab, uniform_density)
-from .jellium_slab_meta import solve_meta_slab
 
 __all__ = ["JELLIUM_SURFACE_SCHEMA", "SurfaceSettings", "SurfacePoint", "JelliumSurfaceStudy",
            "SurfaceConvergence", "jellium_surface", "jellium_surface_point",
@@ -127,14 +126,6 @@ def _named(spec, key: str):
         return get_functional(spec)
     except InputError as exc:
         raise InputError(exc.reason, key=key, value=spec) from None
-
-
-def _solve(grid, settings: "SurfaceSettings", log=None) -> SlabState:
-    """The separable slab, or the meta-GGA slab for a functional of tau."""
-    fn = get_functional(settings.functional)
-    if getattr(fn, "needs_kinetic_density", False):
-        return solve_meta_slab(grid, fn, tolerance=settings.tolerance, log=log)
-    return solve_slab(grid, fn, tolerance=settings.tolerance, log=log)
 
 
 def xc_energy_per_area(functional, state: SlabState) -> float:
@@ -300,7 +291,7 @@ def jellium_surface_point(rs: float, settings: SurfaceSettings = SurfaceSettings
         thickness = wavelength * (settings.thickness + 0.5 * k / settings.thickness_samples)
         grid = slab_grid(rs, thickness, max(settings.vacuum * wavelength, 12.0),
                          settings.cutoff * 0.5 * k_f ** 2)
-        state = _solve(grid, settings, log=log)
+        state = solve_slab(grid, settings.functional, tolerance=settings.tolerance, log=log)
         electrons = grid.electrons_per_area
         per_electron = {"kinetic": bulk["kinetic"], "electrostatic": 0.0,
                         "exchange_correlation": bulk["exchange_correlation"],
