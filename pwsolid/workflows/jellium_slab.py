@@ -307,8 +307,6 @@ def solve_slab(grid: SlabGrid, functional="lda-pw92", *, tolerance: float = 1e-1
     SlabState
         ``converged`` False (with a ``ConvergenceWarning``) after ``max_iterations``.
     """
-    import warnings
-
     fn = get_functional(functional)
     if getattr(fn, "needs_kinetic_density", False):
         from .jellium_slab_meta import solve_meta_slab   # it builds on this module
@@ -319,37 +317,55 @@ def solve_slab(grid: SlabGrid, functional="lda-pw92", *, tolerance: float = 1e-1
     n_in = _initial_density(grid) if initial_density is None else np.array(initial_density)
     k0 = thomas_fermi_wavevector(grid.mean_density)
     mixer = PulayMixer(0.5, 10, kerker_preconditioner((grid.g ** 2).reshape(size, 1, 1), k0))
-    history, converged = [], False
     electrons = grid.electrons_per_area
-    for it in range(1, max_iterations + 1):
-        v_es, _ = _electrostatic(grid, n_in)
-        _, v_xc = _xc_terms(fn, n_in, grid.g, dz)
+
+    def step(n):
+        v_es, _ = _electrostatic(grid, n)
+        _, v_xc = _xc_terms(fn, n, grid.g, dz)
         eps, coeff, mu = _subbands(grid, v_es + v_xc)
         psi = _orbitals(grid, coeff)
         n_out = np.sum(((mu - eps) / math.pi)[:, None] * np.abs(psi) ** 2, axis=0)
-        residual = float(np.sum(np.abs(n_out - n_in)) * dz / electrons)
-        history.append(residual)
-        if log is not None:
-            log(f"slab iteration {it}: density residual {residual:.3e}")
-        if residual < tolerance:
-            converged = True
-            break
-        n_in = mixer.mix(n_in, n_out)
-    density = n_out
+        return n_out, float(np.sum(np.abs(n_out - n)) * dz / electrons), (eps, coeff, psi, mu)
+
+    density, (eps, coeff, psi, mu), converged, history = self_consistency(
+        step, n_in, mixer, tolerance, max_iterations, log, grid, "slab")
     v_es, e_es = _electrostatic(grid, density)
     e_xc, v_xc = _xc_terms(fn, density, grid.g, dz)
     w = mu - eps
     kinetic_z = float(np.sum((w / math.pi) * np.sum(0.5 * grid.g[grid.wave_index] ** 2
                                                      * np.abs(coeff) ** 2, axis=1)))
     kinetic = kinetic_z + float(np.sum(w ** 2) / (2 * math.pi))
-    energies = {"kinetic": kinetic, "electrostatic": e_es, "exchange_correlation": e_xc,
-                "total": kinetic + e_es + e_xc}
-    if not converged:
-        warnings.warn(f"jellium slab (r_s {grid.rs:g}, thickness {grid.thickness:.3g} bohr) "
-                      f"not converged after {max_iterations} iterations (density residual "
-                      f"{history[-1]:.2e})", ConvergenceWarning, stacklevel=2)
-    return SlabState(grid, fn.name, density, v_es, v_xc, eps, psi, mu, energies, converged,
-                     len(history), tuple(history))
+    return SlabState(grid, fn.name, density, v_es, v_xc, eps, psi, mu,
+                     _energies(kinetic, e_es, e_xc), converged, len(history), history)
+
+
+def _energies(kinetic: float, electrostatic: float, xc: float) -> dict:
+    return {"kinetic": kinetic, "electrostatic": electrostatic, "exchange_correlation": xc,
+            "total": kinetic + electrostatic + xc}
+
+
+def self_consistency(step, x_in, mixer, tolerance: float, max_iterations: int, log,
+                     grid: SlabGrid, label: str):
+    """Drive ``step(x) -> (x_out, residual, extra)`` to its fixed point with ``mixer``.
+
+    Returns ``(x_out, extra, converged, history)`` of the last step; warns with a
+    ``ConvergenceWarning`` after ``max_iterations`` steps without ``residual < tolerance``.
+    """
+    import warnings
+
+    history = []
+    for it in range(1, max_iterations + 1):
+        x_out, residual, extra = step(x_in)
+        history.append(residual)
+        if log is not None:
+            log(f"{label} iteration {it}: residual {residual:.3e}")
+        if residual < tolerance:
+            return x_out, extra, True, tuple(history)
+        x_in = mixer.mix(x_in, x_out)
+    warnings.warn(f"jellium {label} (r_s {grid.rs:g}, thickness {grid.thickness:.3g} bohr) "
+                  f"not converged after {max_iterations} iterations (residual "
+                  f"{history[-1]:.2e})", ConvergenceWarning, stacklevel=3)
+    return x_out, extra, False, tuple(history)
 
 
 def edge_force(state: SlabState) -> float:

@@ -24,18 +24,17 @@ together (Pulay, Kerker on the density part).
 from __future__ import annotations
 
 import math
-import warnings
 
 import numpy as np
 from numpy.polynomial import chebyshev as _cheb
 from scipy.optimize import brentq
 
-from ..errors import ConvergenceError, ConvergenceWarning
+from ..errors import ConvergenceError
 from ..mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
 from ..parallel import single_threaded_blas
 from ..xc import get_functional
-from .jellium_slab import (SlabGrid, SlabState, _electrostatic, _parity,
-                           kinetic_energy_density, solve_slab)
+from .jellium_slab import (SlabGrid, SlabState, _electrostatic, _energies, _parity,
+                           kinetic_energy_density, self_consistency, solve_slab)
 
 __all__ = ["solve_meta_slab", "VACUUM_DENSITY"]
 
@@ -200,32 +199,26 @@ def solve_meta_slab(grid: SlabGrid, functional, *, tolerance: float = 1e-10,
     def precondition(r):
         return np.concatenate([kerker(r[:size]), r[size:]])
     mixer = PulayMixer(0.5, 10, precondition)
-    history, converged = [], False
     tau_scale = float(np.sum(tau_in) * dz)
-    for it in range(1, max_iterations + 1):
-        v_es, _ = _electrostatic(grid, n_in)
-        _, v_xc, v_tau = _meta_terms(fn, n_in, tau_in, grid.g, dz, vacuum_density)
+    nodes_top = [q_top]
+
+    def step(x):
+        n, tau = x[:size], x[size:]
+        v_es, _ = _electrostatic(grid, n)
+        _, v_xc, v_tau = _meta_terms(fn, n, tau, grid.g, dz, vacuum_density)
         a, b = _matrices(grid, v_es + v_xc, v_tau)
-        n_out, tau_out, mu, q_end, levels0, orbitals0, q_top = _output(
-            grid, a, b, electrons, q_top, nodes)
-        residual = max(float(np.sum(np.abs(n_out - n_in)) * dz / electrons),
-                       float(np.sum(np.abs(tau_out - tau_in)) * dz / tau_scale))
-        history.append(residual)
-        if log is not None:
-            log(f"meta-GGA slab iteration {it}: residual {residual:.3e}")
-        if residual < tolerance:
-            converged = True
-            break
-        mixed = mixer.mix(np.concatenate([n_in, tau_in]), np.concatenate([n_out, tau_out]))
-        n_in, tau_in = mixed[:size], mixed[size:]
+        n_out, tau_out, mu, _, levels0, orbitals0, nodes_top[0] = _output(
+            grid, a, b, electrons, nodes_top[0], nodes)
+        residual = max(float(np.sum(np.abs(n_out - n)) * dz / electrons),
+                       float(np.sum(np.abs(tau_out - tau)) * dz / tau_scale))
+        return np.concatenate([n_out, tau_out]), residual, (mu, levels0, orbitals0)
+
+    x, (mu, levels0, orbitals0), converged, history = self_consistency(
+        step, np.concatenate([n_in, tau_in]), mixer, tolerance, max_iterations, log, grid,
+        "meta-GGA slab")
+    n_out, tau_out = x[:size], x[size:]
     v_es, e_es = _electrostatic(grid, n_out)
     e_xc, v_xc, _ = _meta_terms(fn, n_out, tau_out, grid.g, dz, vacuum_density)
-    kinetic = float(np.sum(tau_out) * dz)
-    energies = {"kinetic": kinetic, "electrostatic": e_es, "exchange_correlation": e_xc,
-                "total": kinetic + e_es + e_xc}
-    if not converged:
-        warnings.warn(f"meta-GGA jellium slab (r_s {grid.rs:g}) not converged after "
-                      f"{max_iterations} iterations (residual {history[-1]:.2e})",
-                      ConvergenceWarning, stacklevel=2)
+    energies = _energies(float(np.sum(tau_out) * dz), e_es, e_xc)
     return SlabState(grid, fn.name, n_out, v_es, v_xc, levels0, orbitals0, mu, energies,
-                     converged, len(history), tuple(history), kinetic_density=tau_out)
+                     converged, len(history), history, kinetic_density=tau_out)

@@ -320,3 +320,12 @@ def test_xc_surface_energies_agree_with_libxc_on_the_same_density():
     assert abs(point.mean_extra("libxc:gga_x_pbe+gga_c_pbe") / pbe - 1) < 1e-6
     assert abs(point.mean_extra("libxc:lda_x+lda_c_pw")
                / point.mean("exchange_correlation") - 1) < 1e-6
+
+
+def test_unconverged_slab_says_so():
+    # Common practice: an SCF stopped early reports converged = False and warns.
+    from pwsolid.errors import ConvergenceWarning
+
+    with pytest.warns(ConvergenceWarning, match="not converged after 2 iterations"):
+        state = solve_slab(_slab(4.0, 2.0), max_iterations=2)
+    assert not state.converged and state.iterations == 2
