@@ -11,6 +11,7 @@ from .elastic_constants import ElasticResult, ElasticSettings, elastic_constants
 from .equation_of_state import VolumeScan, scan_volumes
 from .relaxation import RelaxationResult, RelaxationSettings, relax_lattice, relax_structure
 from .structures import StructureComparison, compare_structures
+from .jellium_surface import JelliumSurfaceStudy, SurfaceSettings, jellium_surface
 from .uniform_gas import UniformGasReport, testbench_report, uniform_gas_table
 
 __all__ = [
@@ -19,4 +20,5 @@ __all__ = [
     "StructureComparison", "compare_structures", "UniformGasReport", "testbench_report",
     "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
     "relax_structure", "ElasticResult", "ElasticSettings", "elastic_constants",
+    "JelliumSurfaceStudy", "SurfaceSettings", "jellium_surface",
 ]
