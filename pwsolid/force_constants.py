@@ -187,7 +187,7 @@ def plan_displacements(crystal: Crystal, operations: SymmetryOperations, amplitu
     amplitude = float(amplitude)
     if not amplitude > 0:
         raise InputError("the displacement amplitude must be a positive length",
-                         key="phonons.amplitude", value=amplitude)
+                         key="phonons.displacement_length", value=amplitude)
     perm = operation_permutations(operations, crystal)
     rot = cartesian_rotations(operations, crystal.lattice)
     seen = np.zeros(crystal.n_atoms, bool)

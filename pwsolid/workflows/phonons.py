@@ -123,7 +123,7 @@ class PhononSettings:
         if isinstance(amp, bool) or not isinstance(amp, (int, float)) or not (
                 0.001 <= float(amp) <= 0.2):
             raise InputError("must be a length from 0.001 to 0.2 bohr (0.0005 to 0.1 angstrom)",
-                             key="phonons.amplitude", value=amp)
+                             key="phonons.displacement_length", value=amp)
         object.__setattr__(self, "amplitude", float(amp))
         if isinstance(self.path_points, bool) or not isinstance(self.path_points, int) or not (
                 10 <= self.path_points <= 5000):
@@ -349,12 +349,17 @@ class PhononResult:
 
 def _masses(crystal: Crystal, given) -> dict:
     given = dict(given or {})
+    for s in given:
+        if s not in crystal.unique_species:
+            raise InputError(f"no {s} in the crystal (its species: "
+                             f"{', '.join(crystal.unique_species)})", key=f"phonons.masses.{s}",
+                             value=given[s])
     return {s: float(given.get(s, atomic_mass(s))) for s in crystal.unique_species}
 
 
-def _path_of(crystal: Crystal, text: str | None) -> BandPath:
-    spec = standard_path(crystal) if text is None else user_path(crystal, text)
-    return spec
+def _path_of(crystal: Crystal, text: str | None):
+    """The standard path of the lattice, or the user's (a PathSpec)."""
+    return standard_path(crystal) if text is None else user_path(crystal, text)
 
 
 def phonons(crystal: Crystal, settings: GroundStateSettings | None = None,
@@ -384,6 +389,8 @@ def phonons(crystal: Crystal, settings: GroundStateSettings | None = None,
     comm = comm if comm is not None else world()
     emit = log or (lambda line: None)
     solver = solver or scf_force_solver
+    _path_of(crystal, ps.path)                 # a mistake in the path is found before any work
+    masses = _masses(crystal, ps.masses)
     sup = make_supercell(crystal, ps.supercell)
     cell = sup.supercell
     sc_settings = supercell_settings(crystal, cell.lattice, settings)
@@ -443,7 +450,7 @@ def phonons(crystal: Crystal, settings: GroundStateSettings | None = None,
     if records.mismatches:
         messages.append("records of another calculation were reused on request: "
                         + "; ".join(sorted(set(records.mismatches))))
-    return phonons_from_forces(sup, operations, disp, forces, ps, _masses(crystal, ps.masses),
+    return phonons_from_forces(sup, operations, disp, forces, ps, masses,
                                converged=converged, history=history, messages=messages,
                                net_forces=[o[0].net_force for o in outcomes],
                                supercell_kpoint_mesh=sc_settings.kpoint_mesh)

@@ -15,7 +15,8 @@ LAYERS = {
     3: {"pseudo", "electrostatics", "hamiltonian", "energies", "xc_grid"},  # pseudo/atom.py too
     4: {"scf", "parallel", "settings", "store", "warm_start", "preflight", "forces", "stress"},
     5: {"workflows"},
-    6: {"config", "results", "plots", "cli", "commands", "relaxation_keys", "interop"},
+    6: {"config", "results", "plots", "cli", "commands", "relaxation_keys", "interop",
+        "phonon_keys"},
 }
 LAYER_OF = {name: layer for layer, names in LAYERS.items() for name in names}
 
