@@ -417,13 +417,13 @@ def phonons(crystal: Crystal, settings: GroundStateSettings | None = None,
         t0 = time.perf_counter()
         stored = records.load(index, moved, d)
         if stored is not None:
-            return stored, True, 0.0
+            return stored, True, 0.0, comm.rank
         out = solver(moved, sc_settings, state["start"])
         state["start"] = out.density
-        return out, False, time.perf_counter() - t0
+        return out, False, time.perf_counter() - t0, comm.rank
 
     def finished(index, outcome, computed_here):
-        out, reused, seconds = outcome
+        out, reused, seconds, _ = outcome
         if computed_here and not reused:
             records.save(index, _displaced(cell, disp[index]), disp[index],
                          DisplacedForces(out.forces, out.converged, out.iterations,
@@ -442,7 +442,7 @@ def phonons(crystal: Crystal, settings: GroundStateSettings | None = None,
     forces = np.array([o[0].forces for o in outcomes])
     history = tuple({"displacement": i + 1, "iterations": o[0].iterations,
                      "converged": o[0].converged, "net_force_Ha_per_bohr": o[0].net_force,
-                     "reused_from_record": o[1], "seconds": o[2],
+                     "reused_from_record": o[1], "seconds": o[2], "process": o[3],
                      "notes": list(o[0].messages)} for i, o in enumerate(outcomes))
     converged = all(o[0].converged for o in outcomes)
     if not converged:
@@ -458,9 +458,9 @@ def phonons(crystal: Crystal, settings: GroundStateSettings | None = None,
 
 def _strip(outcome):
     """Drop the density (large) before the result travels between processes."""
-    out, reused, seconds = outcome
+    out, *rest = outcome
     return (DisplacedForces(out.forces, out.converged, out.iterations, out.net_force,
-                            out.messages), reused, seconds)
+                            out.messages), *rest)
 
 
 def phonons_from_forces(sup, operations, displacements, forces, ps: PhononSettings,
