@@ -17,7 +17,8 @@ from pwsolid.errors import InputError
 from pwsolid.force_constants import make_force_constants, make_supercell
 from pwsolid.settings import GroundStateSettings
 from pwsolid.units import AMU_ELECTRON_MASSES
-from pwsolid.workflows.phonons import POLAR_CAUTION, PhononSettings, phonons
+from pwsolid.workflows.phonons import (POLAR_CAUTION, PhononSettings,
+                                       force_constants_from_document, phonons)
 from spring_model import spring_solver
 
 A_SI = 10.26          # bohr, near the LDA lattice constant of silicon (from memory)
@@ -59,6 +60,16 @@ def test_mesh_frequencies_for_thermodynamics():
     assert np.allclose(grid.frequencies_THz, fc.frequencies(grid.q_fractional))
     # masses: the standard atomic weight of Si
     assert fc.masses[0] == pytest.approx(28.085 * AMU_ELECTRON_MASSES)
+
+
+def test_force_constants_come_back_from_the_saved_document():
+    result, _ = _run()
+    doc = json.loads(json.dumps(result.as_document()))
+    fc = force_constants_from_document(doc)
+    # every row rebuilt by translation equals the computed one
+    assert np.allclose(fc.phi, result.force_constants.phi, atol=1e-15)
+    q = np.random.default_rng(0).uniform(-0.5, 0.5, (5, 3))
+    assert np.allclose(fc.frequencies(q), result.frequencies(q), atol=1e-12)
 
 
 def test_resume_from_records_without_recomputing(tmp_path):
