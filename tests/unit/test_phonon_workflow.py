@@ -14,7 +14,7 @@ import pytest
 
 from pwsolid.crystal import diamond, zincblende
 from pwsolid.errors import InputError
-from pwsolid.force_constants import make_force_constants, make_supercell
+from pwsolid.force_constants import make_supercell
 from pwsolid.settings import GroundStateSettings
 from pwsolid.units import AMU_ELECTRON_MASSES
 from pwsolid.workflows.phonons import (POLAR_CAUTION, PhononSettings,
