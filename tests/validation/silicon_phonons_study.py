@@ -3,7 +3,7 @@
 Not collected by pytest (tens of minutes on a shared machine). Run as
 
     python tests/validation/silicon_phonons_study.py [--cutoffs 8 12 16] [--supercells 2]
-           [--mesh 4] [--lattice 5.386] [--json out.json]
+           [--mesh 4] [--lattice 5.386] [--pseudopotential FILE] [--json out.json]
 
 and record the printed table (with the date and the settings) in the README.
 Reference frequencies: inelastic neutron scattering (G. Nilsson and G. Nelin, Phys. Rev.
@@ -45,6 +45,8 @@ def main(argv=None) -> int:
     p.add_argument("--supercells", type=int, nargs="+", default=[2])
     p.add_argument("--mesh", type=int, default=4, help="primitive-cell k-mesh (Gamma-centred)")
     p.add_argument("--lattice", type=float, default=5.386, help="angstrom")
+    p.add_argument("--pseudopotential", default=None,
+                   help="Si file (default: the bundled default, Goedecker-Teter-Hutter)")
     p.add_argument("--json")
     args = p.parse_args(argv)
     si = pwsolid.diamond(pwsolid.angstrom(args.lattice), "Si")
@@ -52,6 +54,7 @@ def main(argv=None) -> int:
     for n in args.supercells:
         for cutoff in args.cutoffs:
             settings = pwsolid.GroundStateSettings(
+                pseudopotentials={"Si": args.pseudopotential} if args.pseudopotential else {},
                 cutoff=cutoff, kpoint_mesh=(args.mesh,) * 3, kpoint_shift=(0, 0, 0),
                 energy_tolerance=1e-10, density_tolerance=1e-8)
             t0, c0 = time.perf_counter(), time.process_time()
