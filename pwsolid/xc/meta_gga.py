@@ -66,7 +66,7 @@ _SLATER = 0.75 * (3.0 / math.pi) ** (1.0 / 3.0)    # e_x^unif = -_SLATER n^(4/3)
 _GAMMA = (1.0 - math.log(2.0)) / math.pi ** 2      # PBE gamma
 _MU_AK = 10.0 / 81.0                               # second-order exchange coefficient
 _T2_FACTOR = (3.0 * math.pi ** 2 / 16.0) ** (2.0 / 3.0)   # t^2 = _T2_FACTOR p / (phi^2 rs)
-_G_CNST = 2.3631                                   # G_c(zeta) of SCAN correlation
+_G_CNST = 2.363                                    # G_c(zeta) of SCAN correlation
 # beta(rs = 0) of H1: the PBE value with all the digits of its definition (Libxc's);
 # the SCAN paper prints 0.066725 (1e-5 relative apart)
 _BETA_MB = 0.06672455060314922
