@@ -56,6 +56,9 @@ class MetaFunctional(Functional):
 
     meta: Callable | None = field(default=None, repr=False, compare=False)
     meta_polarized: Callable | None = field(default=None, repr=False, compare=False)
+    #: (paramagnetic, ferromagnetic, stiffness) Perdew-Wang 1992 parameters of its
+    #: uniform-gas limit when they are not the LDA module's printed digits
+    pw92_parameters: tuple | None = field(default=None, repr=False, compare=False)
 
     @property
     def needs_kinetic_density(self) -> bool:
@@ -121,13 +124,15 @@ def _slices(meta: Callable, meta_polarized: Callable | None):
 def meta_functional(name: str, description: str, meta: Callable,
                     meta_polarized: Callable | None = None, *, exchange=None,
                     correlation=None, origin: str = "built-in",
-                    lda_parent: str | None = None) -> MetaFunctional:
+                    lda_parent: str | None = None,
+                    pw92_parameters: tuple | None = None) -> MetaFunctional:
     """A :class:`MetaFunctional` from its meta kernels (slices made here)."""
     unpolarized, polarized, gradient, gradient_polarized = _slices(meta, meta_polarized)
     return MetaFunctional(name, description, unpolarized, polarized, exchange=exchange,
                           correlation=correlation, origin=origin, gradient=gradient,
                           gradient_polarized=gradient_polarized, lda_parent=lda_parent,
-                          meta=meta, meta_polarized=meta_polarized)
+                          meta=meta, meta_polarized=meta_polarized,
+                          pw92_parameters=pw92_parameters)
 
 
 def combine_meta(name: str, description: str, exchange: MetaFunctional,
@@ -145,7 +150,8 @@ def combine_meta(name: str, description: str, exchange: MetaFunctional,
                                                correlation.evaluate_meta_polarized(*arrays)))
 
     return meta_functional(name, description, meta, meta_polarized, exchange=exchange,
-                           correlation=correlation, origin=origin, lda_parent=lda_parent)
+                           correlation=correlation, origin=origin, lda_parent=lda_parent,
+                           pw92_parameters=getattr(correlation, "pw92_parameters", None))
 
 
 def _parts(parameters: MetaParameters, label: str) -> tuple[MetaFunctional, MetaFunctional]:
@@ -157,7 +163,7 @@ def _parts(parameters: MetaParameters, label: str) -> tuple[MetaFunctional, Meta
                                lda_parent="slater-exchange")
     correlation = meta_functional(f"{parameters.name}-correlation", f"{label} correlation",
                                   bind(meta_correlation), bind(meta_correlation_polarized),
-                                  lda_parent="lda-pw92")
+                                  lda_parent="lda-pw92", pw92_parameters=parameters.pw92)
     return exchange, correlation
 
 
