@@ -83,8 +83,8 @@ class _MetaKernels:
         # steps relative to each argument, floored where it is (nearly) zero
         sigma_unit = 4 * _KF2 * n ** (8 / 3)
         tau_unit = 0.3 * _KF2 * n ** (5 / 3)
-        scales = [1e-6 * n, 1e-6 * n, 1e-6 * sigma_unit, 1e-3 * sigma_unit,
-                  1e-6 * sigma_unit, 1e-6 * tau_unit, 1e-6 * tau_unit]
+        scales = [1e-6 * n, 1e-6 * n, 1e-3 * sigma_unit, 1e-3 * sigma_unit,
+                  1e-3 * sigma_unit, 1e-3 * tau_unit, 1e-3 * tau_unit]
         out = []
         for k in range(7):
             h = _STEP * np.maximum(np.abs(args[k]), scales[k])
