@@ -320,7 +320,8 @@ def uniform_gas_kinetic_density(density: np.ndarray) -> np.ndarray:
     return spin_uniform_kinetic_density(density)
 
 
-def _xc_on_grid(setup: SystemSetup, density: np.ndarray, kinetic_density=None):
+def _xc_on_grid(setup: SystemSetup, density: np.ndarray, kinetic_density=None,
+                energy_only: bool = False):
     """E_xc and V_xc of the valence density plus the model core density (if any).
 
     A meta-GGA gets the valence kinetic-energy density only (the model core has
@@ -330,7 +331,7 @@ def _xc_on_grid(setup: SystemSetup, density: np.ndarray, kinetic_density=None):
         density = density + (setup.core_density if density.ndim == 3
                              else 0.5 * setup.core_density[None])
     return exchange_correlation_on_grid(setup.functional, density, setup.fft, setup.g_vectors,
-                                        kinetic_density)
+                                        kinetic_density, energy_only=energy_only)
 
 
 def _channel_potential(v_eff: np.ndarray, spin: int) -> np.ndarray:
@@ -625,7 +626,7 @@ def _energy(setup: SystemSetup, wavefunctions, occupations, density,
     total = density if density.ndim == 3 else density.sum(axis=0)
     n_g = setup.fft.field_to_reciprocal(total)
     e_loc, e_g0 = local_energy(setup.v_loc_g, n_g, setup.volume)
-    e_xc = _xc_on_grid(setup, density, kinetic_density).energy(setup.volume)
+    e_xc = _xc_on_grid(setup, density, kinetic_density, energy_only=True).energy(setup.volume)
     own = list(setup.owned)
     ks = [setup.channel(j)[1] for j in own]
     mine = [wavefunctions[j] for j in own]

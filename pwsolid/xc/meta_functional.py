@@ -59,6 +59,10 @@ class MetaFunctional(Functional):
     #: (paramagnetic, ferromagnetic, stiffness) Perdew-Wang 1992 parameters of its
     #: uniform-gas limit when they are not the LDA module's printed digits
     pw92_parameters: tuple | None = field(default=None, repr=False, compare=False)
+    #: optional energy-only kernels (same arguments, return ``e`` alone): cheaper where
+    #: no potential is needed (the SCF's energy)
+    meta_energy: Callable | None = field(default=None, repr=False, compare=False)
+    meta_energy_polarized: Callable | None = field(default=None, repr=False, compare=False)
 
     @property
     def needs_kinetic_density(self) -> bool:
@@ -70,6 +74,15 @@ class MetaFunctional(Functional):
         n = np.asarray(n, dtype=np.float64)
         return self._checked(self.meta(n, np.asarray(sigma, float), np.asarray(tau, float)),
                              4, n.shape)
+
+    def evaluate_meta_energy(self, *arrays: ArrayLike) -> Array:
+        """The energy per volume alone, of 3 (unpolarised) or 7 (polarised) arrays."""
+        fast = self.meta_energy if len(arrays) == 3 else self.meta_energy_polarized
+        if fast is None:
+            full = (self.evaluate_meta if len(arrays) == 3 else self.evaluate_meta_polarized)
+            return full(*arrays)[0]
+        arrays = [np.asarray(a, float) for a in arrays]
+        return self._checked((fast(*arrays),), 1, arrays[0].shape)[0]
 
     def evaluate_meta_polarized(self, n_up: ArrayLike, n_down: ArrayLike, sigma_uu: ArrayLike,
                                 sigma_ud: ArrayLike, sigma_dd: ArrayLike, tau_up: ArrayLike,
@@ -125,14 +138,17 @@ def meta_functional(name: str, description: str, meta: Callable,
                     meta_polarized: Callable | None = None, *, exchange=None,
                     correlation=None, origin: str = "built-in",
                     lda_parent: str | None = None,
-                    pw92_parameters: tuple | None = None) -> MetaFunctional:
-    """A :class:`MetaFunctional` from its meta kernels (slices made here)."""
+                    pw92_parameters: tuple | None = None,
+                    energies: tuple = (None, None)) -> MetaFunctional:
+    """A :class:`MetaFunctional` from its meta kernels (slices made here); ``energies``
+    are optional energy-only kernels (unpolarised, polarised)."""
     unpolarized, polarized, gradient, gradient_polarized = _slices(meta, meta_polarized)
     return MetaFunctional(name, description, unpolarized, polarized, exchange=exchange,
                           correlation=correlation, origin=origin, gradient=gradient,
                           gradient_polarized=gradient_polarized, lda_parent=lda_parent,
                           meta=meta, meta_polarized=meta_polarized,
-                          pw92_parameters=pw92_parameters)
+                          pw92_parameters=pw92_parameters, meta_energy=energies[0],
+                          meta_energy_polarized=energies[1])
 
 
 def combine_meta(name: str, description: str, exchange: MetaFunctional,
@@ -149,21 +165,32 @@ def combine_meta(name: str, description: str, exchange: MetaFunctional,
             return tuple(a + b for a, b in zip(exchange.evaluate_meta_polarized(*arrays),
                                                correlation.evaluate_meta_polarized(*arrays)))
 
+    def energy(*arrays):
+        return exchange.evaluate_meta_energy(*arrays) + correlation.evaluate_meta_energy(*arrays)
+
     return meta_functional(name, description, meta, meta_polarized, exchange=exchange,
                            correlation=correlation, origin=origin, lda_parent=lda_parent,
-                           pw92_parameters=getattr(correlation, "pw92_parameters", None))
+                           pw92_parameters=getattr(correlation, "pw92_parameters", None),
+                           energies=(energy, energy))
 
 
 def _parts(parameters: MetaParameters, label: str) -> tuple[MetaFunctional, MetaFunctional]:
     def bind(kernel):
         return lambda *arrays: kernel(*arrays, parameters)
 
+    def bind_energy(kernel):
+        return lambda *arrays: kernel(*arrays, parameters, derivatives=False)[0]
+
     exchange = meta_functional(f"{parameters.name}-exchange", f"{label} exchange",
                                bind(meta_exchange), bind(meta_exchange_polarized),
-                               lda_parent="slater-exchange")
+                               lda_parent="slater-exchange",
+                               energies=(bind_energy(meta_exchange),
+                                         bind_energy(meta_exchange_polarized)))
     correlation = meta_functional(f"{parameters.name}-correlation", f"{label} correlation",
                                   bind(meta_correlation), bind(meta_correlation_polarized),
-                                  lda_parent="lda-pw92", pw92_parameters=parameters.pw92)
+                                  lda_parent="lda-pw92", pw92_parameters=parameters.pw92,
+                                  energies=(bind_energy(meta_correlation),
+                                            bind_energy(meta_correlation_polarized)))
     return exchange, correlation
 
 
@@ -179,5 +206,6 @@ def built_in_meta_functionals() -> dict[str, MetaFunctional]:
         rows[f"{name}-exchange"] = meta_functional(
             f"{name}-exchange", f"{label} exchange only, no correlation",
             exchange.meta, exchange.meta_polarized, exchange=exchange,
-            lda_parent="slater-exchange")
+            lda_parent="slater-exchange",
+            energies=(exchange.meta_energy, exchange.meta_energy_polarized))
     return rows

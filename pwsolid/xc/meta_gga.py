@@ -324,25 +324,35 @@ def _arrays(*values) -> list[Array]:
 
 
 def meta_exchange(n: ArrayLike, sigma: ArrayLike, tau: ArrayLike,
-                  parameters: MetaParameters = SCAN) -> tuple[Array, ...]:
-    """Exchange of a spin-unpolarised density: ``(e_x, de/dn, de/dsigma, de/dtau)``."""
+                  parameters: MetaParameters = SCAN, *,
+                  derivatives: bool = True) -> tuple[Array, ...]:
+    """Exchange of a spin-unpolarised density: ``(e_x, de/dn, de/dsigma, de/dtau)``;
+    ``(e_x,)`` alone with ``derivatives=False`` (plain arrays, about 4x cheaper)."""
     n, sigma, tau = _arrays(n, sigma, tau)
 
     def kernel(n, s, t):
+        if not derivatives:
+            return (_exchange_energy(n, s, t, parameters),)
         e = _exchange_energy(*D.variables(n, s, t), parameters)
         return (e.v, *e.d)
 
-    return _occupied_apply(kernel, n > DENSITY_FLOOR, [n, sigma, tau], 4)
+    return _occupied_apply(kernel, n > DENSITY_FLOOR, [n, sigma, tau], 4 if derivatives else 1)
 
 
 def meta_exchange_polarized(n_up: ArrayLike, n_down: ArrayLike, sigma_uu: ArrayLike,
                             sigma_ud: ArrayLike, sigma_dd: ArrayLike, tau_up: ArrayLike,
-                            tau_down: ArrayLike,
-                            parameters: MetaParameters = SCAN) -> tuple[Array, ...]:
-    """Exchange of a spin-polarised density by spin scaling (8 arrays, see the module)."""
+                            tau_down: ArrayLike, parameters: MetaParameters = SCAN, *,
+                            derivatives: bool = True) -> tuple[Array, ...]:
+    """Exchange of a spin-polarised density by spin scaling (8 arrays, see the module;
+    ``(e_x,)`` alone with ``derivatives=False``)."""
     up, down, s_uu, s_ud, s_dd, t_up, t_down = _arrays(n_up, n_down, sigma_uu, sigma_ud,
                                                        sigma_dd, tau_up, tau_down)
     up, down = np.maximum(up, 0.0), np.maximum(down, 0.0)
+    if not derivatives:
+        return (0.5 * (meta_exchange(2.0 * up, 4.0 * s_uu, 2.0 * t_up, parameters,
+                                     derivatives=False)[0]
+                       + meta_exchange(2.0 * down, 4.0 * s_dd, 2.0 * t_down, parameters,
+                                       derivatives=False)[0]),)
     e_up, dn_up, ds_up, dt_up = meta_exchange(2.0 * up, 4.0 * s_uu, 2.0 * t_up, parameters)
     e_dn, dn_dn, ds_dn, dt_dn = meta_exchange(2.0 * down, 4.0 * s_dd, 2.0 * t_down, parameters)
     return (0.5 * (e_up + e_dn), dn_up, dn_dn, 2.0 * ds_up, np.zeros_like(s_ud),
@@ -350,24 +360,29 @@ def meta_exchange_polarized(n_up: ArrayLike, n_down: ArrayLike, sigma_uu: ArrayL
 
 
 def meta_correlation(n: ArrayLike, sigma: ArrayLike, tau: ArrayLike,
-                     parameters: MetaParameters = SCAN) -> tuple[Array, ...]:
-    """Correlation of a spin-unpolarised density: ``(e_c, de/dn, de/dsigma, de/dtau)``."""
+                     parameters: MetaParameters = SCAN, *,
+                     derivatives: bool = True) -> tuple[Array, ...]:
+    """Correlation of a spin-unpolarised density: ``(e_c, de/dn, de/dsigma, de/dtau)``;
+    ``(e_c,)`` alone with ``derivatives=False``."""
     n, sigma, tau = _arrays(n, sigma, tau)
 
     def kernel(n, s, t):
+        if not derivatives:
+            return (_correlation_energy(0.5 * n, 0.5 * n, s, t, parameters),)
         dn, ds, dt = D.variables(n, s, t)
         half = 0.5 * dn
         e = _correlation_energy(half, half, ds, dt, parameters)
         return (e.v, *e.d)
 
-    return _occupied_apply(kernel, n > DENSITY_FLOOR, [n, sigma, tau], 4)
+    return _occupied_apply(kernel, n > DENSITY_FLOOR, [n, sigma, tau], 4 if derivatives else 1)
 
 
 def meta_correlation_polarized(n_up: ArrayLike, n_down: ArrayLike, sigma_uu: ArrayLike,
                                sigma_ud: ArrayLike, sigma_dd: ArrayLike, tau_up: ArrayLike,
-                               tau_down: ArrayLike,
-                               parameters: MetaParameters = SCAN) -> tuple[Array, ...]:
-    """Correlation of a spin-polarised density (8 arrays, see the module).
+                               tau_down: ArrayLike, parameters: MetaParameters = SCAN, *,
+                               derivatives: bool = True) -> tuple[Array, ...]:
+    """Correlation of a spin-polarised density (8 arrays, see the module; ``(e_c,)``
+    alone with ``derivatives=False``).
 
     It depends on the gradients through ``|grad n|^2 = sigma_uu + 2 sigma_ud +
     sigma_dd`` and on ``tau = tau_up + tau_down`` only.
@@ -377,10 +392,13 @@ def meta_correlation_polarized(n_up: ArrayLike, n_down: ArrayLike, sigma_uu: Arr
     up, down = np.maximum(up, 0.0), np.maximum(down, 0.0)
 
     def kernel(u, d, s, t):
+        if not derivatives:
+            return (_correlation_energy(u, d, s, t, parameters),)
         e = _correlation_energy(*D.variables(u, d, s, t), parameters)
         return (e.v, *e.d)
 
-    e, d_up, d_down, d_s, d_t = _occupied_apply(
-        kernel, up + down > DENSITY_FLOOR, [up, down, s_uu + 2.0 * s_ud + s_dd, t_up + t_down],
-        5)
+    arrays = [up, down, s_uu + 2.0 * s_ud + s_dd, t_up + t_down]
+    if not derivatives:
+        return _occupied_apply(kernel, up + down > DENSITY_FLOOR, arrays, 1)
+    e, d_up, d_down, d_s, d_t = _occupied_apply(kernel, up + down > DENSITY_FLOOR, arrays, 5)
     return e, d_up, d_down, d_s, 2.0 * d_s, d_s, d_t, d_t

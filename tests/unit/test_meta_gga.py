@@ -176,3 +176,15 @@ def test_registry_names_and_parts():
         assert get_functional(f"{name}-exchange").correlation is None
     # the paper digits of PW92 differ from the built-in ones by ~1e-5 relative only
     assert abs(SCAN.pw92[0].a / lda.PW92_PARAMAGNETIC.a - 1) < 2e-5
+
+
+@pytest.mark.parametrize("name", ["scan", "r2scan"])
+def test_energy_only_kernels_equal_the_full_ones(name):
+    functional = get_functional(name)
+    par = PARAMETERS[name]
+    n, sigma, tau = _grid(par.eta)
+    assert np.allclose(functional.evaluate_meta_energy(n, sigma, tau),
+                       functional.evaluate_meta(n, sigma, tau)[0], rtol=1e-14, atol=0)
+    args = _polarized_grid(par.eta)
+    assert np.allclose(functional.evaluate_meta_energy(*args),
+                       functional.evaluate_meta_polarized(*args)[0], rtol=1e-14, atol=0)
