@@ -291,40 +291,50 @@ class FFTGrid:
             stop = min(nb, start + self.batch)
             m = stop - start
             src, dst, bwd, fwd, flat = self._sphere_buffer(m, grid_index)
-            psi, work = self._meta_scratch(m)
+            lap, tau_psi, bwd_lap, fwd_tau = self._meta_plans(m)
             src.reshape(-1)[flat] = coefficients[start:stop].reshape(-1)
             t0 = time.perf_counter()
-            bwd(normalise_idft=False)
+            bwd(normalise_idft=False)                       # dst = psi
             self.seconds += time.perf_counter() - t0
-            psi[...] = dst
             src.reshape(-1)[flat] = (coefficients[start:stop] * kpg2).reshape(-1)
             t0 = time.perf_counter()
-            bwd(normalise_idft=False)
+            bwd_lap(normalise_idft=False)                   # lap = F^-1[|k+G|^2 c]
             self.seconds += time.perf_counter() - t0
-            np.multiply(dst, tau4, out=dst)
-            np.multiply(psi, prepared, out=work)
-            dst += work
+            np.multiply(dst, prepared_tau, out=tau_psi)
+            np.multiply(dst, prepared, out=dst)
+            np.multiply(lap, tau4, out=lap)
+            dst += lap
             t0 = time.perf_counter()
             fwd()
+            fwd_tau()
             self.seconds += time.perf_counter() - t0
             np.take(dst.reshape(-1), flat, out=out[start:stop].reshape(-1))
-            np.multiply(psi, prepared_tau, out=dst)
-            t0 = time.perf_counter()
-            fwd()
-            self.seconds += time.perf_counter() - t0
-            np.take(dst.reshape(-1), flat, out=second[:m].reshape(-1))
+            np.take(tau_psi.reshape(-1), flat, out=second[:m].reshape(-1))
             second[:m] *= quarter
             out[start:stop] += second[:m]
         self.n_transforms += 4 * nb
         return out
 
-    def _meta_scratch(self, nb: int):
-        """Two complex scratch blocks of ``nb`` grids (kept between calls)."""
-        scratch = getattr(self, "_meta_buffers", None)
-        if scratch is None:
-            scratch = np.empty((2, self.batch, *self.shape), dtype=complex)
-            object.__setattr__(self, "_meta_buffers", scratch)
-        return scratch[0, :nb], scratch[1, :nb]
+    def _meta_plans(self, nb: int):
+        """Scratch grids and plans of :meth:`apply_prepared_meta` for ``nb`` fields:
+        ``(lap, tau_psi, backward src -> lap, forward tau_psi in place)``."""
+        plans = getattr(self, "_meta_cache", None)
+        if plans is None:
+            plans = {"lap": pyfftw.empty_aligned((self.batch, *self.shape), dtype="complex128"),
+                     "tau": pyfftw.empty_aligned((self.batch, *self.shape), dtype="complex128")}
+            self._meta_cache = plans
+        if nb not in plans:
+            src = self._shared[0]
+            lap, tau = plans["lap"][:nb], plans["tau"][:nb]
+            bwd = pyfftw.FFTW(src[:nb], lap, axes=(1, 2, 3), direction="FFTW_BACKWARD",
+                              flags=("FFTW_MEASURE",), threads=self.threads)
+            fwd = pyfftw.FFTW(tau, tau, axes=(1, 2, 3), direction="FFTW_FORWARD",
+                              flags=("FFTW_MEASURE", "FFTW_DESTROY_INPUT"), threads=self.threads)
+            src[...] = 0          # planning may scribble on the shared input buffer
+            self._shared[2] = None
+            plans[nb] = (bwd, fwd)
+        bwd, fwd = plans[nb]
+        return plans["lap"][:nb], plans["tau"][:nb], bwd, fwd
 
     def accumulate_density(self, coefficients: np.ndarray, grid_index: np.ndarray,
                            weights: np.ndarray, out: np.ndarray) -> None:
