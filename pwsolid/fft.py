@@ -330,8 +330,9 @@ class FFTGrid:
                               flags=("FFTW_MEASURE",), threads=self.threads)
             fwd = pyfftw.FFTW(tau, tau, axes=(1, 2, 3), direction="FFTW_FORWARD",
                               flags=("FFTW_MEASURE", "FFTW_DESTROY_INPUT"), threads=self.threads)
-            src[...] = 0          # planning may scribble on the shared input buffer
-            self._shared[2] = None
+            # planning may scribble on the shared input buffer; zero it all (the sphere
+            # bookkeeping of _sphere_buffer stays valid: its entries are zero too)
+            src[...] = 0
             plans[nb] = (bwd, fwd)
         bwd, fwd = plans[nb]
         return plans["lap"][:nb], plans["tau"][:nb], bwd, fwd
