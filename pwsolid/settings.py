@@ -253,7 +253,8 @@ SETTINGS_TABLE: tuple[Setting, ...] = (
             "kerker, model-dielectric or none",
             choices=lambda: ("auto", "kerker", "model-dielectric", "none")),
     Setting("self_consistency.screening_wavevector", "screening_wavevector", "quantity",
-            "Kerker screening wave vector q0 (automatic: Thomas-Fermi of the mean density)",
+            "screening wave vector q0 of the Kerker and model-dielectric mixing (automatic: "
+            "Thomas-Fermi of the mean density)",
             unit="inverse_length", low=0.0, high=50.0, low_open=True, high_open=True,
             automatic=True),
     Setting("self_consistency.dielectric_constant", "dielectric_constant", "number",
