@@ -316,7 +316,7 @@ def starting_point(warm: WarmStart | None, grid_shape, volume: float, crystal=No
             and list(old.species) == list(crystal.species)):
         earlier = []
         before = warm.earlier
-        while before is not None and len(earlier) < _EARLIER_STRUCTURES:
+        while before is not None and len(earlier) < EARLIER_STRUCTURES:
             if before.crystal is None or list(before.crystal.species) != list(crystal.species):
                 break
             earlier.append((transfer_density(before.density, before.volume, grid_shape, volume),
@@ -469,7 +469,7 @@ def moved_atoms_density(density: np.ndarray, lattice: np.ndarray, old_positions:
 
 
 #: At most this many structures before the previous one enter the moved-atoms start.
-_EARLIER_STRUCTURES = 4
+EARLIER_STRUCTURES = 4
 #: Moves of earlier structures along directions with singular values below this fraction
 #: of the largest are not fitted (a nearly dependent path would amplify noise).
 _PATH_CUTOFF = 0.1

@@ -19,7 +19,7 @@ import numpy as np
 from ..crystal import Crystal
 from ..settings import GroundStateSettings
 from ..units import HA_PER_BOHR3_GPA
-from ..warm_start import (_EARLIER_STRUCTURES, WarmStart, atomic_density_forms, starting_point,
+from ..warm_start import (EARLIER_STRUCTURES, WarmStart, atomic_density_forms, starting_point,
                           wavefunction_start_of)
 
 
@@ -105,7 +105,7 @@ def _remember_origin(memory: dict, gs, start) -> None:
     if start is None:
         return
     origins = memory.setdefault("origins", {})
-    origins[id(gs)] = (gs, _trimmed(start, _EARLIER_STRUCTURES - 1))
+    origins[id(gs)] = (gs, _trimmed(start, EARLIER_STRUCTURES - 1))
     for key in list(origins)[:-3]:
         del origins[key]
 

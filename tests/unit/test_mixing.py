@@ -151,6 +151,19 @@ def test_kerker_argument_errors():
         kerker_preconditioner(g2, 1.0)(np.zeros(10))
 
 
+def _screened_model(g2, eps, mean, rng):
+    """(step, start, target) of a model SCF map whose density residual is
+    -eps(G) (n - n*) for a smooth random n* of the given mean (G = 0 kept)."""
+    smooth = np.fft.ifftn(np.fft.fftn(rng.normal(size=g2.shape)) * np.exp(-g2)).real
+    target = mean * (1 + 0.3 * smooth / np.abs(smooth).max())
+
+    def step(x):
+        delta = np.fft.ifftn(np.fft.fftn(x.reshape(g2.shape) - target) * eps).real
+        return x - delta.ravel()
+
+    return step, np.full(g2.size, target.mean()), target
+
+
 def test_pulay_with_kerker_cures_charge_sloshing(rng):
     # Model metal in a long cubic cell: residual -eps(G) (n - n*), eps = 1 + k^2/G^2.
     # eps reaches 1 + k^2 / G_min^2 ~ 29, so unpreconditioned mixing is unstable
@@ -161,14 +174,7 @@ def test_pulay_with_kerker_cures_charge_sloshing(rng):
     k = thomas_fermi_wavevector(mean)
     eps = np.ones_like(g2)
     eps[g2 > 0] = 1 + k * k / g2[g2 > 0]
-    smooth = np.fft.ifftn(np.fft.fftn(rng.normal(size=g2.shape)) * np.exp(-g2)).real
-    target = mean * (1 + 0.3 * smooth / np.abs(smooth).max())
-
-    def step(x):
-        delta = np.fft.ifftn(np.fft.fftn(x.reshape(g2.shape) - target) * eps).real
-        return x - delta.ravel()
-
-    start = np.full(g2.size, target.mean())
+    step, start, target = _screened_model(g2, eps, mean, rng)
     kerker = kerker_preconditioner(g2, k)
     n_kerker, x = _iterate(PulayMixer(0.6, 8, preconditioner=kerker), step, start, 200)
     assert n_kerker <= 10
@@ -242,14 +248,7 @@ def test_pulay_with_the_model_dielectric_solves_a_model_insulator(rng):
     mean = 0.03
     q0 = thomas_fermi_wavevector(mean)
     eps = model_dielectric_function(np.sqrt(g2), eps0, q0)
-    smooth = np.fft.ifftn(np.fft.fftn(rng.normal(size=g2.shape)) * np.exp(-g2)).real
-    target = mean * (1 + 0.3 * smooth / np.abs(smooth).max())
-
-    def step(x):
-        delta = np.fft.ifftn(np.fft.fftn(x.reshape(g2.shape) - target) * eps).real
-        return x - delta.ravel()
-
-    start = np.full(g2.size, target.mean())
+    step, start, target = _screened_model(g2, eps, mean, rng)
     model = model_dielectric_preconditioner(g2, eps0, q0)
     n_linear, x = _iterate(LinearMixer(1.0, preconditioner=model), step, start, 5)
     assert n_linear == 2
