@@ -242,6 +242,7 @@ PATH_ONLY_SETTINGS: dict[str, str] = {
     "mixing_history": "the path of the iterations",
     "mixing_preconditioner": "the path of the iterations",
     "screening_wavevector": "the path of the iterations",
+    "dielectric_constant": "the path of the iterations",
     "empty_bands": "bands computed beyond the occupied ones (a run may add some)",
 }
 
