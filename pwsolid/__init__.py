@@ -34,6 +34,7 @@ from .workflows import (BandStructure, ConvergenceStudy, DOSResult, StructureCom
 from .workflows.relaxation import (RelaxationResult, RelaxationSettings, relax_lattice,
                                    relax_structure)
 from .workflows.elastic_constants import ElasticResult, ElasticSettings, elastic_constants
+from .workflows.phonons import PhononResult, PhononSettings, phonons
 from .workflows.jellium_surface import JelliumSurfaceStudy, SurfaceSettings, jellium_surface
 from .xc import FUNCTIONALS, get_functional, load_user_functional
 from .xc.conditions import check_exact_conditions
@@ -66,5 +67,6 @@ __all__ = [
     "AtomicForces", "atomic_forces", "StressTensor", "stress_tensor",
     "relax_structure", "relax_lattice", "RelaxationSettings", "RelaxationResult",
     "elastic_constants", "ElasticSettings", "ElasticResult",
+    "PhononResult", "PhononSettings", "phonons",
     "jellium_surface", "SurfaceSettings", "JelliumSurfaceStudy",
 ]

@@ -33,6 +33,7 @@ from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
 from .relaxation_keys import RELAXATION_KEYS, read_relaxation
 from .elastic_keys import ELASTIC_KEYS, read_elastic
+from .phonon_keys import PHONON_KEYS, read_phonons
 from .resources import inputs_dir, pseudopotential_dir
 from .settings import SETTINGS_TABLE, UNIT_TEXT, GroundStateSettings, Setting
 from .preflight import check_cell_shape
@@ -175,6 +176,13 @@ ELASTIC_TABLE: tuple[Setting, ...] = tuple(
             unit=unit, default_text=default)
     for key, kind, unit, default, meaning in ELASTIC_KEYS)
 
+#: Keys of [phonons] (the phonons command), read by :func:`pwsolid.phonon_keys.read_phonons`.
+PHONON_TABLE: tuple[Setting, ...] = tuple(
+    Setting(f"phonons.{key}", None,
+            kind if kind in ("name", "integer", "boolean") else "anything", meaning,
+            unit=unit, default_text=default)
+    for key, kind, unit, default, meaning in PHONON_KEYS)
+
 INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     "crystal": CRYSTAL_KEYS,
     "pseudopotentials": (),
@@ -182,6 +190,7 @@ INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     "output": OUTPUT_KEYS,
     "relaxation": RELAXATION_TABLE,
     "elastic_constants": ELASTIC_TABLE,
+    "phonons": PHONON_TABLE,
 }
 _SETTINGS_SECTIONS = tuple(_settings_tables())
 _SCHEMA: dict[str, dict[str, Setting]] = {
@@ -287,6 +296,7 @@ class RunInput:
     checkpoint_interval: int = 1
     relaxation: Any = None     # RelaxationSettings of the [relaxation] table (or defaults)
     elastic: Any = None        # ElasticSettings of the [elastic_constants] table (or defaults)
+    phonons: Any = None        # PhononSettings of the [phonons] table (or defaults)
 
 
 # -- reading -------------------------------------------------------------
@@ -365,8 +375,12 @@ def parse_input(document: Mapping, *, source: str | None = None,
     elastic = document.get("elastic_constants")  # [elastic_constants]: see elastic_keys.py
     if elastic is not None:
         echo = {**echo, "elastic_constants": dict(elastic)}
-    return replace(run, relaxation=read_relaxation(table, source),
-                   elastic=read_elastic(elastic, source), echo=echo)
+    phonon_table = document.get("phonons")      # [phonons]: see phonon_keys.py
+    if phonon_table is not None:
+        echo = {**echo, "phonons": dict(phonon_table)}
+    return replace(run, relaxation=read_relaxation(table, source), echo=echo,
+                   elastic=read_elastic(elastic, source),
+                   phonons=read_phonons(phonon_table, source))
 
 
 def _check_cell_shape(run: RunInput, source: str | None) -> None:

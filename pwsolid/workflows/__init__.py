@@ -13,6 +13,7 @@ from .relaxation import RelaxationResult, RelaxationSettings, relax_lattice, rel
 from .structures import StructureComparison, compare_structures
 from .jellium_surface import JelliumSurfaceStudy, SurfaceSettings, jellium_surface
 from .uniform_gas import UniformGasReport, testbench_report, uniform_gas_table
+from .phonons import PhononResult, PhononSettings, phonons
 
 __all__ = [
     "BandStructure", "band_structure", "empirical_band_structure", "ConvergenceStudy",
@@ -20,5 +21,6 @@ __all__ = [
     "StructureComparison", "compare_structures", "UniformGasReport", "testbench_report",
     "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
     "relax_structure", "ElasticResult", "ElasticSettings", "elastic_constants",
+    "PhononResult", "PhononSettings", "phonons",
     "JelliumSurfaceStudy", "SurfaceSettings", "jellium_surface",
 ]
