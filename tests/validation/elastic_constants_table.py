@@ -57,7 +57,8 @@ def run(name, cutoff=None, mesh=None, strains=2, width=0.02, largest=0.01):
     b = (c["C11"] + 2 * c["C12"]) / 3
     zeta = "-" if res.internal_strain is None else f"{res.internal_strain:.3f}"
     print("\n".join(res.summary_lines()))
-    how = f"{m}^3, {smearing} {width:g} Ha, +-{100 * largest:g} %"
+    smeared = "" if smearing == "none" else f", {smearing} {width:g} Ha"
+    how = f"{m}^3{smeared}, +-{100 * largest:g} %"
     print(f"\n| {name} | {cut:g} | {how} | {a0 * BOHR_ANGSTROM:.4f} | {c['C11']:.1f} "
           f"({measured['C11']}) | {c['C12']:.1f} ({measured['C12']}) | {c['C44']:.1f} "
           f"({measured['C44']}) | {cl['C44']:.1f} | {zeta} | {b:.1f} | {scan.fit.b0_gpa:.1f} "
