@@ -15,6 +15,7 @@ LAYERS = {
     5: {"workflows"},
     6: {"config", "results", "plots", "cli", "commands", "relaxation_keys", "interop"},
 }
+LAYERS[1].add("thermodynamics")   # harmonic thermodynamics kernels (arrays in, arrays out)
 LAYER_OF = {name: layer for layer, names in LAYERS.items() for name in names}
 
 
