@@ -37,6 +37,7 @@ Lattice Dynamics in the Harmonic Approximation*, 2nd ed. (Academic Press,
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -45,7 +46,13 @@ from .errors import InputError
 from .units import HARTREE_THZ, KELVIN_HA
 
 __all__ = ["VibrationalSpectrum", "HarmonicThermodynamics", "harmonic_thermodynamics",
-           "spectrum_from_dos", "check_temperatures", "SOFT_MODE_THRESHOLD_HA"]
+           "spectrum_from_dos", "check_temperatures", "temperature_grid",
+           "SOFT_MODE_THRESHOLD_HA", "DEFAULT_HIGHEST_TEMPERATURE", "DEFAULT_TEMPERATURE_STEP"]
+
+#: Default temperature grid of the commands: 0 K to this, K.
+DEFAULT_HIGHEST_TEMPERATURE = 1000.0
+#: Default step of that grid, K (fine enough for d ln V / dT by differences).
+DEFAULT_TEMPERATURE_STEP = 5.0
 
 #: Modes below this energy (Ha; about 0.002 THz) count as zero (acoustic at Gamma).
 SOFT_MODE_THRESHOLD_HA = 3e-7
@@ -67,6 +74,19 @@ def check_temperatures(temperatures, key: str = "temperatures") -> np.ndarray:
         raise InputError("temperatures must be finite and not negative (kelvin)", key=key,
                          value=t.tolist())
     return t
+
+
+def temperature_grid(highest: float = DEFAULT_HIGHEST_TEMPERATURE,
+                     step: float = DEFAULT_TEMPERATURE_STEP, *,
+                     key: str = "temperatures") -> np.ndarray:
+    """0, step, 2 step, ... up to ``highest`` (K, included when it falls on the grid)."""
+    ok = all(isinstance(x, (int, float)) and not isinstance(x, bool) and np.isfinite(x)
+             for x in (highest, step))
+    if not ok or not (0 < step <= highest <= 1e5) or highest / step > 1e5:
+        raise InputError("needs 0 < step <= highest temperature <= 100000 K and at most "
+                         "100000 steps", key=key, value=[highest, step])
+    n = int(math.floor(highest / step + 1e-9))
+    return step * np.arange(n + 1, dtype=float)
 
 
 @dataclass(frozen=True, eq=False)

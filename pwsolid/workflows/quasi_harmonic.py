@@ -372,3 +372,102 @@ def quasi_harmonic_from_spectra(volumes, static_energies, spectra: Sequence[Vibr
         mode_gruneisen=mode_gruneisen(v, spectra), inside_range=inside, n_atoms=int(n_atoms),
         reference_volume=ref_v, reference_lengths=ref_l, form=form,
         messages=tuple(dict.fromkeys(notes)))
+
+
+# --- the full calculation ----------------------------------------------------------------
+
+def _default_phonon_solver(cell, settings, phonon_settings, *, record_dir, accept_mismatch,
+                           comm, log, progress):
+    """Phonons of ``cell`` by finite displacements (:func:`pwsolid.workflows.phonons.phonons`)."""
+    from .phonons import phonons
+
+    return phonons(cell, settings, phonon_settings, record_dir=record_dir,
+                   accept_mismatch=accept_mismatch, comm=comm, log=log, progress=progress)
+
+
+def quasi_harmonic(crystal, settings=None, phonon_settings=None, *, temperatures=None,
+                   volume_range: float = 0.03, n_points: int = 7, q_mesh=(12, 12, 12),
+                   form: str = "birch-murnaghan", record_dir=None, accept_mismatch: bool = False,
+                   scan_solver=None, phonon_solver=None, comm=None, log=None,
+                   progress=None) -> QuasiHarmonicResult:
+    """Static energies and phonons at several volumes, then the quasi-harmonic fits.
+
+    Parameters
+    ----------
+    crystal : Crystal
+        The primitive cell; its shape is kept at every volume.
+    settings : GroundStateSettings
+        Ground-state settings of the static scan and of the displaced supercells.
+    phonon_settings : PhononSettings
+        Supercell, displacement amplitude, ... (:mod:`pwsolid.workflows.phonons`).
+    temperatures : array_like, K
+        Default 0 to 1000 K by 5 K.
+    volume_range, n_points
+        The static scan (:func:`pwsolid.workflows.equation_of_state.scan_volumes`);
+        its range extensions, if any, get phonons too.
+    q_mesh
+        Gamma-centred q-mesh of the Brillouin-zone sums at each volume.
+    form
+        Equation of state fitted to F(V, T).
+    record_dir
+        Directory for the resume files: ``volumes.json`` for the static scan and
+        one sub-directory of displacement records per volume.
+    scan_solver, phonon_solver
+        Seams for tests: ``scan_solver`` as in ``scan_volumes``; ``phonon_solver(cell,
+        settings, phonon_settings, record_dir=, accept_mismatch=, comm=, log=, progress=)``
+        returns an object with ``mesh_frequencies(q_mesh)`` (``frequencies_THz``,
+        ``weights``), ``converged`` and ``messages``.
+
+    Returns
+    -------
+    QuasiHarmonicResult
+        Its ``history`` holds one entry per volume (static energy, convergence,
+        lowest frequency, resume).
+    """
+    from pathlib import Path
+
+    from ..thermodynamics import temperature_grid
+    from .cell_geometry import crystal_at, lattice_lengths
+    from .equation_of_state import scan_volumes
+    from .vibrational_thermodynamics import spectrum_of_mesh
+
+    t = temperature_grid() if temperatures is None else temperatures
+    emit = log or (lambda line: None)
+    root = Path(record_dir) if record_dir is not None else None
+    if root is not None:
+        root.mkdir(parents=True, exist_ok=True)
+    scan = scan_volumes(crystal, settings, volume_range=volume_range, n_points=n_points,
+                        store=None if root is None else root / "volumes.json",
+                        accept_mismatch=accept_mismatch, solver=scan_solver, comm=comm, log=emit)
+    settings = scan.settings
+    solver = phonon_solver or _default_phonon_solver
+    notes = [f"static scan: {m}" for m in scan.messages]
+    spectra, history = [], []
+    volumes = np.asarray(scan.volumes, dtype=float)
+    for i, v in enumerate(volumes):
+        cell = crystal_at(crystal, float(v), None)
+        rel = v / crystal.volume
+        emit(f"phonons at V/V_in = {rel:.5f} ({i + 1} of {volumes.size})")
+        sub = None if root is None else root / f"phonons-volume-{rel:.6f}"
+        result = solver(cell, settings, phonon_settings, record_dir=sub,
+                        accept_mismatch=accept_mismatch, comm=comm, log=emit, progress=None)
+        mesh = result.mesh_frequencies(tuple(q_mesh))
+        spectra.append(spectrum_of_mesh(mesh))
+        lowest = float(np.min(mesh.frequencies_THz))
+        history.append({"volume_bohr3": float(v), "relative_volume": float(rel),
+                        "static_energy_Ha": float(scan.energies[i]),
+                        "phonons_converged": bool(getattr(result, "converged", True)),
+                        "lowest_frequency_THz": lowest})
+        for m in getattr(result, "messages", ()) or ():
+            notes.append(f"phonons at V/V_in = {rel:.4f}: {m}")
+        if progress is not None:
+            progress(i + 1, volumes.size)
+    if not all(h["phonons_converged"] for h in history):
+        notes.append("some displaced supercells did not converge (see history)")
+    out = quasi_harmonic_from_spectra(volumes, scan.energies, spectra, t, form=form,
+                                      n_atoms=crystal.n_atoms, reference_volume=crystal.volume,
+                                      reference_lengths=lattice_lengths(crystal.lattice),
+                                      messages=notes)
+    from dataclasses import replace
+
+    return replace(out, history=tuple(history))

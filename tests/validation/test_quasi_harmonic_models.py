@@ -119,3 +119,37 @@ def test_minimum_leaving_the_volumes_is_flagged():
     assert not qha.converged
     assert qha.trusted_up_to is not None and qha.trusted_up_to < 1600.0
     assert any("outside the sampled volumes" in m for m in qha.messages)
+
+
+def test_full_driver_with_model_solvers(tmp_path):
+    # the scan and the phonons replaced by the model: the driver must hand the volumes,
+    # energies and spectra over unchanged and scale the lattice as V^(1/3)
+    from types import SimpleNamespace
+
+    from pwsolid.crystal import diamond
+    from pwsolid.workflows.quasi_harmonic import quasi_harmonic
+
+    crystal = diamond(10.26, "Si")
+    branches = [(10.0, 6, 1.2)]
+    spectrum, exact_volume = _model(branches)
+    scale = V0 / crystal.volume          # model volumes are the crystal's times this
+
+    def scan_solver(cell, settings, warm):
+        e = birch_murnaghan_energy(cell.volume * scale, -7.9, V0, B0, BP)
+        return SimpleNamespace(total_energy=float(e), converged=True, iterations=1, density=None)
+
+    def phonon_solver(cell, settings, phonon_settings, **kwargs):
+        s = spectrum(cell.volume * scale)
+        mesh = SimpleNamespace(frequencies_THz=s.energies * HARTREE_THZ, weights=s.weights,
+                               mesh=(1, 1, 1))
+        return SimpleNamespace(mesh_frequencies=lambda q: mesh, converged=True, messages=())
+
+    qha = quasi_harmonic(crystal, temperatures=[0.0, 100.0, 200.0, 300.0], volume_range=0.04,
+                         n_points=9, q_mesh=(1, 1, 1), scan_solver=scan_solver,
+                         phonon_solver=phonon_solver, record_dir=tmp_path)
+    # the model in the crystal's volume units: V_exact / scale, to the fit's 1e-6
+    np.testing.assert_allclose(qha.volume * scale, [exact_volume(x) for x in qha.temperatures],
+                               rtol=1e-6)
+    a = qha.lattice(qha.volume)["a"]
+    np.testing.assert_allclose(a, 10.26 * (qha.volume / crystal.volume) ** (1 / 3), rtol=1e-12)
+    assert len(qha.history) == 9 and qha.converged
