@@ -64,3 +64,14 @@ __all__ = [
     "AtomicForces", "atomic_forces", "StressTensor", "stress_tensor",
     "relax_structure", "relax_lattice", "RelaxationSettings", "RelaxationResult",
 ]
+
+# vibrational thermodynamics and the quasi-harmonic approximation
+from .thermodynamics import VibrationalSpectrum, harmonic_thermodynamics  # noqa: E402
+from .workflows.thermal_expansion import (QuasiHarmonicResult, quasi_harmonic,  # noqa: E402
+                                       quasi_harmonic_from_spectra)
+from .workflows.phonon_thermodynamics import (VibrationalThermodynamics,  # noqa: E402
+                                                   vibrational_thermodynamics)
+
+__all__ += ["VibrationalSpectrum", "harmonic_thermodynamics", "QuasiHarmonicResult",
+            "quasi_harmonic", "quasi_harmonic_from_spectra", "VibrationalThermodynamics",
+            "vibrational_thermodynamics"]

@@ -32,6 +32,7 @@ import numpy as np
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
 from .relaxation_keys import RELAXATION_KEYS, read_relaxation
+from .thermal_keys import THERMAL_KEYS, read_thermal
 from .resources import inputs_dir, pseudopotential_dir
 from .settings import SETTINGS_TABLE, UNIT_TEXT, GroundStateSettings, Setting
 from .preflight import check_cell_shape
@@ -173,6 +174,10 @@ INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     **_settings_tables(),
     "output": OUTPUT_KEYS,
     "relaxation": RELAXATION_TABLE,
+    "thermal": tuple(   # [thermal] (quasi-harmonic command): read by thermal_keys.read_thermal
+        Setting(f"thermal.{key}", None, kind if kind in ("integer", "integers3") else "anything",
+                meaning, unit=unit, default_text=default)
+        for key, kind, unit, default, meaning in THERMAL_KEYS),
 }
 _SETTINGS_SECTIONS = tuple(_settings_tables())
 _SCHEMA: dict[str, dict[str, Setting]] = {
@@ -277,6 +282,7 @@ class RunInput:
     checkpoint_file: Path | None = None
     checkpoint_interval: int = 1
     relaxation: Any = None     # RelaxationSettings of the [relaxation] table (or defaults)
+    thermal: Any = None        # ThermalSettings of the [thermal] table (or defaults)
 
 
 # -- reading -------------------------------------------------------------
@@ -352,7 +358,10 @@ def parse_input(document: Mapping, *, source: str | None = None,
     _check_cell_shape(run, source)
     table = document.get("relaxation")          # [relaxation]: see relaxation_keys.py
     echo = run.echo if table is None else {**run.echo, "relaxation": dict(table)}
-    return replace(run, relaxation=read_relaxation(table, source), echo=echo)
+    run = replace(run, relaxation=read_relaxation(table, source), echo=echo)
+    table = document.get("thermal")             # [thermal]: see thermal_keys.py
+    echo = run.echo if table is None else {**run.echo, "thermal": dict(table)}
+    return replace(run, thermal=read_thermal(table, source), echo=echo)
 
 
 def _check_cell_shape(run: RunInput, source: str | None) -> None:

@@ -19,3 +19,10 @@ __all__ = [
     "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
     "relax_structure",
 ]
+
+# vibrational thermodynamics and the quasi-harmonic approximation
+from .thermal_expansion import QuasiHarmonicResult, quasi_harmonic, quasi_harmonic_from_spectra
+from .phonon_thermodynamics import VibrationalThermodynamics, vibrational_thermodynamics
+
+__all__ += ["QuasiHarmonicResult", "quasi_harmonic", "quasi_harmonic_from_spectra",
+            "VibrationalThermodynamics", "vibrational_thermodynamics"]

@@ -18,7 +18,7 @@ from scipy.optimize import brentq
 from pwsolid.eos import birch_murnaghan_energy, birch_murnaghan_pressure
 from pwsolid.thermodynamics import VibrationalSpectrum, harmonic_thermodynamics
 from pwsolid.units import HARTREE_THZ, KELVIN_HA
-from pwsolid.workflows.quasi_harmonic import quasi_harmonic_from_spectra
+from pwsolid.workflows.thermal_expansion import quasi_harmonic_from_spectra
 
 V0, B0, BP = 270.0, 0.0033, 4.2           # a silicon-like cell: bohr^3, Ha/bohr^3 (97 GPa)
 
@@ -127,7 +127,7 @@ def test_full_driver_with_model_solvers(tmp_path):
     from types import SimpleNamespace
 
     from pwsolid.crystal import diamond
-    from pwsolid.workflows.quasi_harmonic import quasi_harmonic
+    from pwsolid.workflows.thermal_expansion import quasi_harmonic
 
     crystal = diamond(10.26, "Si")
     branches = [(10.0, 6, 1.2)]

@@ -157,7 +157,9 @@ class QuasiHarmonicResult:
     def converged(self) -> bool:
         """Every fit converged and V(T) stayed inside the sampled volumes throughout."""
         return (all(f.converged for f in self.fits) and self.static_fit.converged
-                and bool(np.all(self.inside_range)))
+                and bool(np.all(self.inside_range))
+                and all(h.get("static_converged", True) and h.get("phonons_converged", True)
+                        for h in self.history))
 
     @property
     def linear_expansion(self) -> np.ndarray:
@@ -429,7 +431,7 @@ def quasi_harmonic(crystal, settings=None, phonon_settings=None, *, temperatures
     from ..thermodynamics import temperature_grid
     from .cell_geometry import crystal_at, lattice_lengths
     from .equation_of_state import scan_volumes
-    from .vibrational_thermodynamics import spectrum_of_mesh
+    from .phonon_thermodynamics import spectrum_of_mesh
 
     t = temperature_grid() if temperatures is None else temperatures
     emit = log or (lambda line: None)
@@ -456,6 +458,7 @@ def quasi_harmonic(crystal, settings=None, phonon_settings=None, *, temperatures
         lowest = float(np.min(mesh.frequencies_THz))
         history.append({"volume_bohr3": float(v), "relative_volume": float(rel),
                         "static_energy_Ha": float(scan.energies[i]),
+                        "static_converged": bool(scan.all_points_converged),
                         "phonons_converged": bool(getattr(result, "converged", True)),
                         "lowest_frequency_THz": lowest})
         for m in getattr(result, "messages", ()) or ():

@@ -121,7 +121,8 @@ def spectrum_of_mesh(mesh) -> VibrationalSpectrum:
 
 
 def vibrational_thermodynamics(source, temperatures=None, *, n_atoms: int | None = None,
-                               q_mesh=None) -> VibrationalThermodynamics:
+                               q_mesh=None, spectrum_from: str | None = None
+                               ) -> VibrationalThermodynamics:
     """Zero-point energy, F, U, S and C_V against temperature from phonons.
 
     Parameters
@@ -136,6 +137,8 @@ def vibrational_thermodynamics(source, temperatures=None, *, n_atoms: int | None
         Atoms per cell; default the number of modes / 3.
     q_mesh
         For a phonon result: the q-mesh of the sums (default the result's own mesh).
+    spectrum_from
+        What the modes came from, for the document (default: said by ``source``).
     """
     t = temperature_grid() if temperatures is None else temperatures
     if isinstance(source, VibrationalSpectrum):
@@ -153,7 +156,7 @@ def vibrational_thermodynamics(source, temperatures=None, *, n_atoms: int | None
                          "VibrationalSpectrum", key="source", value=type(source).__name__)
     n = int(n_atoms) if n_atoms is not None else max(1, round(spectrum.n_modes / 3))
     harmonic = harmonic_thermodynamics(spectrum, t)
-    return VibrationalThermodynamics(harmonic, n, what, harmonic.messages)
+    return VibrationalThermodynamics(harmonic, n, spectrum_from or what, harmonic.messages)
 
 
 def spectrum_of_phonon_document(doc, source: str = "phonon result") -> tuple[
