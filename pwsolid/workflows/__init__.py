@@ -11,6 +11,7 @@ from .equation_of_state import VolumeScan, scan_volumes
 from .relaxation import RelaxationResult, RelaxationSettings, relax_lattice, relax_structure
 from .structures import StructureComparison, compare_structures
 from .uniform_gas import UniformGasReport, testbench_report, uniform_gas_table
+from .phonons import PhononResult, PhononSettings, phonons
 
 __all__ = [
     "BandStructure", "band_structure", "empirical_band_structure", "ConvergenceStudy",
@@ -18,6 +19,7 @@ __all__ = [
     "StructureComparison", "compare_structures", "UniformGasReport", "testbench_report",
     "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
     "relax_structure",
+    "PhononResult", "PhononSettings", "phonons",
 ]
 
 # vibrational thermodynamics and the quasi-harmonic approximation

@@ -184,6 +184,21 @@ CASES = [
      "relaxation.moves", "accepted: positions, cell, both"),
     ("misspelt relaxation key", CRYSTAL + '[relaxation]\nforce_treshold = "1e-4 Ha/bohr"\n',
      "relaxation.force_treshold", "did you mean 'relaxation.force_threshold'?"),
+    # phonons (the phonons command)
+    ("zero phonon supercell", CRYSTAL + "[phonons]\nsupercell = [0, 2, 2]\n",
+     "phonons.supercell", "three repeats from 1 to 20"),
+    ("phonon supercell of two", CRYSTAL + "[phonons]\nsupercell = [2, 2]\n",
+     "phonons.supercell", "a list of 3 TOML integers"),
+    ("displacement without unit", CRYSTAL + "[phonons]\ndisplacement_length = 0.02\n",
+     "phonons.displacement_length", "5.43 angstrom"),
+    ("huge displacement", CRYSTAL + '[phonons]\ndisplacement_length = "1 angstrom"\n',
+     "phonons.displacement_length", "from 0.001 to 0.2 bohr"),
+    ("unknown phonon DOS method", CRYSTAL + '[phonons]\ndos_method = "histogram"\n',
+     "phonons.dos_method", "accepted: tetrahedron, gaussian"),
+    ("phonon DOS width without unit", CRYSTAL + '[phonons]\ndos_width = "0.1"\n',
+     "phonons.dos_width", "accepted units: THz, cm^-1, meV"),
+    ("misspelt phonon key", CRYSTAL + "[phonons]\ndos_mseh = [8, 8, 8]\n",
+     "phonons.dos_mseh", "did you mean 'phonons.dos_mesh'?"),
 ]
 
 
