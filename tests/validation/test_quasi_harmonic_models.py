@@ -153,3 +153,79 @@ def test_full_driver_with_model_solvers(tmp_path):
     a = qha.lattice(qha.volume)["a"]
     np.testing.assert_allclose(a, 10.26 * (qha.volume / crystal.volume) ** (1 / 3), rtol=1e-12)
     assert len(qha.history) == 9 and qha.converged
+
+
+def _bond_springs(reference, stiffness):
+    """Forces of nearest-neighbour springs (along and across each bond, Ha/bohr^2 times
+    ``stiffness``) of a diamond supercell ``reference``: a harmonic model whose every
+    frequency scales as sqrt(stiffness)."""
+    import itertools
+
+    from pwsolid.workflows.phonons import DisplacedForces
+
+    shifts = np.array(list(itertools.product(range(-1, 2), repeat=3))) @ reference.lattice
+    ref = reference.cartesian_positions
+    bond = math.sqrt(3) / 4 * (4 * reference.volume / reference.n_atoms * 2) ** (1 / 3)
+
+    def solve(crystal, settings, start):
+        du = crystal.positions - reference.positions
+        u = (du - np.rint(du)) @ crystal.lattice
+        f = np.zeros_like(u)
+        for i, j in itertools.product(range(len(u)), repeat=2):
+            for t in shifts:
+                r = ref[j] + t - ref[i]
+                d = np.linalg.norm(r)
+                if 1e-8 < d < 1.2 * bond:
+                    e = r / d
+                    k = stiffness * (0.1 * np.outer(e, e) + 0.02 * (np.eye(3) - np.outer(e, e)))
+                    f[i] += k @ (u[j] - u[i])
+        return DisplacedForces(f, True, 1, 0.0)
+    return solve
+
+
+@pytest.mark.slow
+def test_driver_through_the_phonon_workflow():
+    # springs stiffening as V^(-2 gamma) make every frequency scale as V^(-gamma): the
+    # real phonon workflow (supercell, displacements, force constants, q-mesh) must give
+    # mode Grueneisen parameters gamma and the V(T) of the Grueneisen relation
+    from types import SimpleNamespace
+
+    from pwsolid.crystal import diamond
+    from pwsolid.force_constants import make_supercell
+    from pwsolid.settings import GroundStateSettings
+    from pwsolid.workflows.phonons import PhononSettings, phonons
+    from pwsolid.workflows.thermal_expansion import quasi_harmonic
+
+    crystal = diamond(10.26, "Si")
+    gamma, mesh = 1.3, (4, 4, 4)
+    ps = PhononSettings(supercell=(2, 2, 2), dos_mesh=(4, 4, 4), path_points=20)
+    settings = GroundStateSettings(cutoff=6.0, kpoint_mesh=(2, 2, 2))
+
+    def phonon_solver(cell, s, p, **kw):
+        stiffness = (cell.volume / crystal.volume) ** (-2 * gamma)
+        sup = make_supercell(cell, (2, 2, 2)).supercell
+        return phonons(cell, settings, ps, solver=_bond_springs(sup, stiffness))
+
+    def scan_solver(cell, s, warm):
+        e = birch_murnaghan_energy(cell.volume, -7.9, crystal.volume, B0, BP)
+        return SimpleNamespace(total_energy=float(e), converged=True, iterations=1, density=None)
+
+    t = np.array([0.0, 150.0, 300.0, 450.0])
+    qha = quasi_harmonic(crystal, settings, ps, temperatures=t, volume_range=0.03, n_points=7,
+                         q_mesh=mesh, scan_solver=scan_solver, phonon_solver=phonon_solver)
+    # 1e-6: the modes come from diagonalised dynamical matrices, the springs are exact
+    np.testing.assert_allclose(qha.mode_gruneisen[np.isfinite(qha.mode_gruneisen)], gamma,
+                               rtol=1e-6)
+    # the exact V(T): P_static(V) = -gamma U(V, T) / V with the mesh spectrum at V
+    ref = phonons(crystal, settings, ps, solver=_bond_springs(
+        make_supercell(crystal, (2, 2, 2)).supercell, 1.0)).mesh_frequencies(mesh)
+
+    def u_of(v, temp):
+        spec = VibrationalSpectrum.from_thz(ref.frequencies_THz * (v / crystal.volume) ** -gamma,
+                                            ref.weights)
+        return harmonic_thermodynamics(spec, [temp]).internal_energy[0]
+
+    exact = [brentq(lambda v: birch_murnaghan_pressure(v, crystal.volume, B0, BP)
+                    + gamma * u_of(v, temp) / v, 0.95 * crystal.volume, 1.05 * crystal.volume,
+                    xtol=1e-12) for temp in t]
+    np.testing.assert_allclose(qha.volume, exact, rtol=1e-6)
