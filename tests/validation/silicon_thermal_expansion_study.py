@@ -83,6 +83,12 @@ def main() -> None:
             slope = np.polyfit(lnv, np.log(nu), 1)[0]
             gam[label] = (-slope).tolist()
     doc["mode_gruneisen_special_points"] = gam
+    # the same from the three middle volumes only (a check on the volume step)
+    inner = vols[len(vols) // 2 - 1: len(vols) // 2 + 2]
+    doc["mode_gruneisen_special_points_middle_three"] = {
+        label: (-np.polyfit(np.log(inner), np.log([special[v][label] for v in inner]), 1)[0]
+                ).tolist() for label in gam}
+    doc["special_points_THz_by_volume"] = {f"{v:.4f}": special[v] for v in vols}
     mid = vols[len(vols) // 2]
     doc["special_points_THz_middle_volume"] = special[mid]
     (out / "silicon-qha.json").write_text(json.dumps(doc, indent=1))
@@ -103,6 +109,8 @@ def main() -> None:
                   f"  B_T = {qha.bulk_modulus[i] * HA_PER_BOHR3_GPA:.1f} GPa")
     print("negative expansion:", qha.negative_expansion())
     print("Grueneisen at special points:", json.dumps(gam))
+    print("  from the middle three volumes:",
+          json.dumps(doc["mode_gruneisen_special_points_middle_three"]))
     print("frequencies at the middle volume (THz):", json.dumps(special[mid]))
     print("messages:", *qha.messages, sep="\n  ")
 
