@@ -9,6 +9,7 @@ import pytest
 
 from pwsolid.config import load_input
 from pwsolid.errors import InputError
+from pwsolid.xc.libxc_bridge import libxc_available
 
 CRYSTAL = '[crystal]\nprototype = "diamond"\nlattice_constant = "5.43 angstrom"\nspecies = ["Si"]\n'
 EXPLICIT = ('[crystal]\nprototype = "explicit"\nlattice_constant = "5.43 angstrom"\n'
@@ -211,6 +212,16 @@ CASES = [
      "thermal.equation_of_state", "accepted: birch-murnaghan, vinet, murnaghan, polynomial"),
     ("misspelt thermal key", CRYSTAL + "[thermal]\nqmesh = [8, 8, 8]\n",
      "thermal.qmesh", "did you mean 'thermal.q_mesh'?"),
+    # Libxc names: without the library the message says how to install it
+    ("unknown Libxc name", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:gga_c_pbee"\n',
+     "exchange_correlation.functional",
+     "'gga_c_pbe'" if libxc_available() else "apt-get install libxc9"),
+    ("Libxc meta-GGA", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:mgga_x_scan"\n',
+     "exchange_correlation.functional",
+     "is a meta-GGA" if libxc_available() else "apt-get install libxc9"),
+    ("Libxc hybrid", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:hyb_gga_xc_pbeh"\n',
+     "exchange_correlation.functional",
+     "exact (Fock) exchange" if libxc_available() else "apt-get install libxc9"),
 ]
 
 
