@@ -59,7 +59,8 @@ from .units import HARTREE_THZ
 __all__ = ["SupercellMap", "make_supercell", "Displacement", "plan_displacements",
            "cartesian_rotations", "operation_permutations", "force_constants_from_forces",
            "site_symmetry_violation", "acoustic_sum_violation", "fit_residual",
-           "impose_acoustic_sum_rule", "ForceConstants", "make_force_constants"]
+           "impose_acoustic_sum_rule", "ForceConstants", "make_force_constants",
+           "full_from_origin_rows"]
 
 #: Largest (ops x atoms x atoms) block compared at once when mapping atoms.
 _PERMUTATION_CHUNK = 4_000_000
@@ -417,3 +418,24 @@ def make_force_constants(supercell: SupercellMap, phi: np.ndarray, masses) -> Fo
     for a in arrays:
         a.setflags(write=False)
     return ForceConstants(supercell, np.asarray(phi), masses, *arrays)
+
+
+def full_from_origin_rows(supercell: SupercellMap, rows: np.ndarray) -> np.ndarray:
+    """All of Phi (n_super, n_super, 3, 3) from the rows of the primitive atoms.
+
+    By translation symmetry Phi[i, j] = Phi[k, j'] where atom i is primitive atom k
+    moved by a lattice vector t and j' is the atom at x_j - t (modulo the supercell).
+    """
+    sup = supercell.supercell
+    rows = np.asarray(rows, float)
+    frac = sup.positions
+    inv = np.linalg.inv(supercell.matrix.astype(float))
+    phi = np.zeros((sup.n_atoms, sup.n_atoms, 3, 3))
+    for i in range(sup.n_atoms):
+        k = supercell.primitive_index[i]
+        shift = supercell.cell[i] @ inv                  # t in supercell fractions
+        moved = frac - shift
+        diff = moved[:, None, :] - frac[None, :, :]
+        match = np.all(np.abs(diff - np.rint(diff)) < 1e-6, axis=-1)   # [j, j']
+        phi[i] = rows[k][np.argmax(match, axis=1)]
+    return phi

@@ -51,7 +51,7 @@ from ..bandpath import BandPath, sample_path, standard_path, user_path
 from ..crystal import Crystal
 from ..errors import ConvergenceWarning, InputError
 from ..force_constants import (Displacement, ForceConstants, acoustic_sum_violation,
-                               fit_residual, force_constants_from_forces,
+                               fit_residual, force_constants_from_forces, full_from_origin_rows,
                                impose_acoustic_sum_rule, make_force_constants, make_supercell,
                                plan_displacements, site_symmetry_violation)
 from ..parallel import map_over_ranks, world
@@ -62,7 +62,8 @@ from ..symmetry import find_symmetry
 from ..units import AMU_ELECTRON_MASSES, BOHR_ANGSTROM, THZ_INVERSE_CM, THZ_MEV
 
 __all__ = ["PhononSettings", "PhononResult", "phonons", "supercell_settings",
-           "PHONON_SCHEMA", "POLAR_CAUTION", "phonons_from_forces"]
+           "PHONON_SCHEMA", "POLAR_CAUTION", "phonons_from_forces",
+           "force_constants_from_document"]
 
 #: Schema of the phonon result document.
 PHONON_SCHEMA = "pwsolid.phonons/1"
@@ -417,13 +418,13 @@ def phonons(crystal: Crystal, settings: GroundStateSettings | None = None,
         t0 = time.perf_counter()
         stored = records.load(index, moved, d)
         if stored is not None:
-            return stored, True, 0.0
+            return stored, True, 0.0, comm.rank
         out = solver(moved, sc_settings, state["start"])
         state["start"] = out.density
-        return out, False, time.perf_counter() - t0
+        return out, False, time.perf_counter() - t0, comm.rank
 
     def finished(index, outcome, computed_here):
-        out, reused, seconds = outcome
+        out, reused, seconds, _ = outcome
         if computed_here and not reused:
             records.save(index, _displaced(cell, disp[index]), disp[index],
                          DisplacedForces(out.forces, out.converged, out.iterations,
@@ -442,7 +443,7 @@ def phonons(crystal: Crystal, settings: GroundStateSettings | None = None,
     forces = np.array([o[0].forces for o in outcomes])
     history = tuple({"displacement": i + 1, "iterations": o[0].iterations,
                      "converged": o[0].converged, "net_force_Ha_per_bohr": o[0].net_force,
-                     "reused_from_record": o[1], "seconds": o[2],
+                     "reused_from_record": o[1], "seconds": o[2], "process": o[3],
                      "notes": list(o[0].messages)} for i, o in enumerate(outcomes))
     converged = all(o[0].converged for o in outcomes)
     if not converged:
@@ -458,9 +459,9 @@ def phonons(crystal: Crystal, settings: GroundStateSettings | None = None,
 
 def _strip(outcome):
     """Drop the density (large) before the result travels between processes."""
-    out, reused, seconds = outcome
+    out, *rest = outcome
     return (DisplacedForces(out.forces, out.converged, out.iterations, out.net_force,
-                            out.messages), reused, seconds)
+                            out.messages), *rest)
 
 
 def phonons_from_forces(sup, operations, displacements, forces, ps: PhononSettings,
@@ -495,3 +496,19 @@ def phonons_from_forces(sup, operations, displacements, forces, ps: PhononSettin
     return PhononResult(fc, tuple(displacements), np.asarray(forces), checks, path, dispersion,
                         dos, grid, special, bool(converged), tuple(history), tuple(messages),
                         ps, tuple(supercell_kpoint_mesh), dict(masses))
+
+
+def force_constants_from_document(document: Mapping) -> ForceConstants:
+    """The :class:`ForceConstants` of a saved phonon result document (``as_document()``),
+    e.g. to evaluate frequencies on another q-mesh without recomputing any force."""
+    if document.get("schema") != PHONON_SCHEMA:
+        raise InputError(f"not a phonon result document (schema {PHONON_SCHEMA} expected)",
+                         key="schema", value=document.get("schema"))
+    cell = document["primitive_cell"]
+    primitive = Crystal(np.array(cell["lattice_vectors_bohr"]), tuple(cell["species"]),
+                        np.array(cell["fractional_positions"]))
+    sup = make_supercell(primitive, np.array(document["supercell"]["matrix"]))
+    phi = full_from_origin_rows(sup, np.array(document["force_constants_Ha_per_bohr2"]["blocks"]))
+    masses = document["masses_dalton"]
+    return make_force_constants(sup, phi, [masses[s] * AMU_ELECTRON_MASSES
+                                           for s in primitive.species])

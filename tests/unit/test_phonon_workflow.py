@@ -1,13 +1,12 @@
 """The phonon workflow with an analytic force model in place of the SCF.
 
-The solver seam takes a harmonic spring model of diamond (springs along and across
-the bonds up to the second neighbours, attached at the equilibrium bond
-directions): its forces are exact and instant, so the plumbing (displacements,
+The solver seam takes a harmonic spring model of diamond (tests/spring_model.py:
+springs along and across the nearest-neighbour bonds, attached at the equilibrium
+bond directions): its forces are exact and instant, so the plumbing (displacements,
 records, resume, document, mesh frequencies for thermodynamics) is checked
 against the model's own force constants.
 """
 
-import itertools
 import json
 
 import numpy as np
@@ -15,37 +14,16 @@ import pytest
 
 from pwsolid.crystal import diamond, zincblende
 from pwsolid.errors import InputError
-from pwsolid.force_constants import make_force_constants, make_supercell
+from pwsolid.force_constants import make_supercell
 from pwsolid.settings import GroundStateSettings
 from pwsolid.units import AMU_ELECTRON_MASSES
-from pwsolid.workflows.phonons import (POLAR_CAUTION, DisplacedForces, PhononSettings,
-                                       phonons)
+from pwsolid.workflows.phonons import (POLAR_CAUTION, PhononSettings,
+                                       force_constants_from_document, phonons)
+from spring_model import spring_solver
 
 A_SI = 10.26          # bohr, near the LDA lattice constant of silicon (from memory)
 CUTOFF = 6.5          # bohr: first neighbours (4.44 bohr) only; second are at 7.25
 SETTINGS = GroundStateSettings(cutoff=6.0, kpoint_mesh=(2, 2, 2))
-
-
-def spring_solver(reference, calls):
-    """Forces of the periodic spring model of ``reference`` (counts its calls)."""
-    shifts = np.array(list(itertools.product(range(-1, 2), repeat=3))) @ reference.lattice
-    ref = reference.cartesian_positions
-
-    def solve(crystal, settings, start):
-        calls.append(crystal)
-        du = crystal.positions - reference.positions
-        u = (du - np.rint(du)) @ crystal.lattice
-        f = np.zeros_like(u)
-        for i, j in itertools.product(range(len(u)), repeat=2):
-            for t in shifts:
-                r = ref[j] + t - ref[i]
-                d = np.linalg.norm(r)
-                if 1e-8 < d < CUTOFF:
-                    e = r / d
-                    k = 0.1 * np.outer(e, e) + 0.02 * (np.eye(3) - np.outer(e, e))
-                    f[i] += k @ (u[j] - u[i])
-        return DisplacedForces(f, True, 7, 0.0)
-    return solve
 
 
 def _run(tmp_path=None, crystal=None, calls=None, **kw):
@@ -53,7 +31,7 @@ def _run(tmp_path=None, crystal=None, calls=None, **kw):
     calls = [] if calls is None else calls
     sup = make_supercell(crystal, (2, 2, 2)).supercell
     ps = PhononSettings(supercell=(2, 2, 2), dos_mesh=(6, 6, 6), path_points=40)
-    return phonons(crystal, SETTINGS, ps, solver=spring_solver(sup, calls),
+    return phonons(crystal, SETTINGS, ps, solver=spring_solver(sup, CUTOFF, calls=calls),
                    record_dir=None if tmp_path is None else tmp_path / "records", **kw), calls
 
 
@@ -82,6 +60,16 @@ def test_mesh_frequencies_for_thermodynamics():
     assert np.allclose(grid.frequencies_THz, fc.frequencies(grid.q_fractional))
     # masses: the standard atomic weight of Si
     assert fc.masses[0] == pytest.approx(28.085 * AMU_ELECTRON_MASSES)
+
+
+def test_force_constants_come_back_from_the_saved_document():
+    result, _ = _run()
+    doc = json.loads(json.dumps(result.as_document()))
+    fc = force_constants_from_document(doc)
+    # every row rebuilt by translation equals the computed one
+    assert np.allclose(fc.phi, result.force_constants.phi, atol=1e-15)
+    q = np.random.default_rng(0).uniform(-0.5, 0.5, (5, 3))
+    assert np.allclose(fc.frequencies(q), result.frequencies(q), atol=1e-12)
 
 
 def test_resume_from_records_without_recomputing(tmp_path):
@@ -113,3 +101,28 @@ def test_polar_caution_for_two_elements():
 def test_bad_phonon_settings(kw):
     with pytest.raises(InputError):
         PhononSettings(**kw)
+
+
+def test_a_run_killed_midway_resumes_with_the_missing_displacements_only(tmp_path):
+    gaas = zincblende(10.68, ("Ga", "As"))      # two inequivalent atoms: two displacements
+    sup = make_supercell(gaas, (2, 2, 2)).supercell
+    model = spring_solver(sup, 5.0)
+    calls = []
+    settings = GroundStateSettings(pseudopotentials={
+        "Ga": "Ga-hartwigsen-goedecker-hutter.toml", "As": "As-hartwigsen-goedecker-hutter.toml"})
+    ps = PhononSettings(supercell=(2, 2, 2), dos_mesh=(4, 4, 4), path_points=20)
+
+    def dies_on_the_second(crystal, s, start):
+        calls.append(crystal)
+        if len(calls) == 2:
+            raise KeyboardInterrupt
+        return model(crystal, s, start)
+
+    with pytest.raises(KeyboardInterrupt):
+        phonons(gaas, settings, ps, solver=dies_on_the_second, record_dir=tmp_path)
+    assert [p.name for p in tmp_path.glob("*.npz")] == ["displacement-001.npz"]
+    again = []
+    result = phonons(gaas, settings, ps, record_dir=tmp_path,
+                     solver=spring_solver(sup, 5.0, calls=again))
+    assert len(again) == 1
+    assert [h["reused_from_record"] for h in result.history] == [True, False]

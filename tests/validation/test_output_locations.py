@@ -99,6 +99,7 @@ DIRECTORY_OPTIONS = [
     ("jellium", lambda i, p: ["jellium", "--output-dir", p]),
     ("density-response", lambda i, p: ["density-response", "--output-dir", p]),
     ("xc-testbench", lambda i, p: ["xc-testbench", "--output-dir", p]),
+    ("phonons", lambda i, p: ["phonons", i, "--output-dir", p]),
 ]
 INPUT_KEYS = ["result_file", "density_file", "checkpoint_file"]
 
