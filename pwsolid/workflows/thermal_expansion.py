@@ -55,13 +55,13 @@ import numpy as np
 
 from ..eos import EOSFit, fit_equation_of_state
 from ..errors import ConvergenceWarning, InputError
-from ..thermodynamics import (HarmonicThermodynamics, VibrationalSpectrum, check_temperatures,
+from ..thermodynamics import (VibrationalSpectrum, check_temperatures,
                               harmonic_thermodynamics)
 from ..units import (BOHR_ANGSTROM, GAS_CONSTANT_J_PER_MOL_K, HA_PER_BOHR3_GPA, HARTREE_EV,
                      KELVIN_HA)
 
-__all__ = ["QuasiHarmonicResult", "quasi_harmonic_from_spectra", "QUASI_HARMONIC_SCHEMA",
-           "mode_gruneisen"]
+__all__ = ["QuasiHarmonicResult", "quasi_harmonic", "quasi_harmonic_from_spectra",
+           "QUASI_HARMONIC_SCHEMA", "mode_gruneisen"]
 
 #: Schema of the quasi-harmonic result document.
 QUASI_HARMONIC_SCHEMA = "pwsolid.quasi-harmonic/1"

@@ -46,7 +46,12 @@ def main() -> None:
     ap.add_argument("--qmesh", type=int, default=16)
     ap.add_argument("--highest", type=float, default=600.0)
     ap.add_argument("--out", default="si-thermal-study")
+    ap.add_argument("--gruneisen-only", type=float, default=None, metavar="STEP",
+                    help="only the phonons at V (1 - STEP) and V (1 + STEP) and the mode "
+                         "Grueneisen parameters at the special points (a cheap convergence check)")
     args = ap.parse_args()
+    if args.gruneisen_only:
+        return gruneisen_only(args)
 
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
@@ -113,6 +118,30 @@ def main() -> None:
           json.dumps(doc["mode_gruneisen_special_points_middle_three"]))
     print("frequencies at the middle volume (THz):", json.dumps(special[mid]))
     print("messages:", *qha.messages, sep="\n  ")
+
+
+def gruneisen_only(args) -> None:
+    """-d ln nu / d ln V at the special points from two volumes around --lattice."""
+    base = pwsolid.diamond(pwsolid.angstrom(args.lattice), "Si")
+    settings = pwsolid.GroundStateSettings(
+        cutoff=args.cutoff, kpoint_mesh=(args.kmesh,) * 3, kpoint_shift=(0.0, 0.0, 0.0),
+        energy_tolerance=1e-9, density_tolerance=1e-7)
+    ps = PhononSettings(supercell=(args.supercell,) * 3, dos_mesh=(4, 4, 4), path_points=40)
+    step = args.gruneisen_only
+    t0 = time.perf_counter()
+    points = {}
+    for f in (1 - step, 1 + step):
+        cell = base.scaled(f ** (1 / 3))
+        points[f] = pwsolid.phonons(cell, settings, ps, log=print).special_points
+    dlnv = np.log((1 + step) / (1 - step))
+    lo, hi = points[1 - step], points[1 + step]
+    gam = {k: [-(np.log(b) - np.log(a)) / dlnv for a, b in zip(lo[k], hi[k]) if a > 1e-3]
+           for k in lo}
+    print(f"cutoff {args.cutoff} Ha, mesh {args.kmesh}, supercell {args.supercell}, "
+          f"volumes {1 - step:g} and {1 + step:g}: {time.perf_counter() - t0:.0f} s")
+    for k in ("X", "L"):
+        print(f"  {k}: frequencies {np.round(lo[k], 3).tolist()} -> {np.round(hi[k], 3).tolist()} THz;"
+              f" Grueneisen {np.round(gam[k], 2).tolist()}")
 
 
 if __name__ == "__main__":
