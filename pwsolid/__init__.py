@@ -34,6 +34,7 @@ from .workflows import (BandStructure, ConvergenceStudy, DOSResult, StructureCom
 from .workflows.relaxation import (RelaxationResult, RelaxationSettings, relax_lattice,
                                    relax_structure)
 from .workflows.phonons import PhononResult, PhononSettings, phonons
+from .workflows.jellium_surface import JelliumSurfaceStudy, SurfaceSettings, jellium_surface
 from .xc import FUNCTIONALS, get_functional, load_user_functional
 from .xc.conditions import check_exact_conditions
 
@@ -65,6 +66,7 @@ __all__ = [
     "AtomicForces", "atomic_forces", "StressTensor", "stress_tensor",
     "relax_structure", "relax_lattice", "RelaxationSettings", "RelaxationResult",
     "PhononResult", "PhononSettings", "phonons",
+    "jellium_surface", "SurfaceSettings", "JelliumSurfaceStudy",
 ]
 
 # vibrational thermodynamics and the quasi-harmonic approximation

@@ -21,6 +21,7 @@ __all__ = [
     "HARTREE_EV",
     "BOHR_ANGSTROM",
     "HA_PER_BOHR3_GPA",
+    "HA_PER_BOHR2_ERG_PER_CM2",
     "KELVIN_HA",
     "SPEED_OF_LIGHT",
     "ENERGY_UNITS",
@@ -39,6 +40,9 @@ BOHR_ANGSTROM: float = _c.physical_constants["Bohr radius"][0] * 1e10
 #: 1 Ha/bohr^3 in GPa.
 HA_PER_BOHR3_GPA: float = (_c.physical_constants["Hartree energy"][0]
                            / _c.physical_constants["Bohr radius"][0] ** 3 / 1e9)
+#: 1 Ha/bohr^2 (a surface energy) in erg/cm^2 (about 1.5569e6).
+HA_PER_BOHR2_ERG_PER_CM2: float = (_c.physical_constants["Hartree energy"][0] * 1e7
+                                   / (_c.physical_constants["Bohr radius"][0] * 100) ** 2)
 #: Boltzmann constant times 1 K, in hartree.
 KELVIN_HA: float = _c.k / _c.physical_constants["Hartree energy"][0]
 #: Molar gas constant N_A k_B in J/(mol K) (heat capacities and entropies per mole).

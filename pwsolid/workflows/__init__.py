@@ -10,6 +10,7 @@ from .density_of_states import DOSResult, density_of_states
 from .equation_of_state import VolumeScan, scan_volumes
 from .relaxation import RelaxationResult, RelaxationSettings, relax_lattice, relax_structure
 from .structures import StructureComparison, compare_structures
+from .jellium_surface import JelliumSurfaceStudy, SurfaceSettings, jellium_surface
 from .uniform_gas import UniformGasReport, testbench_report, uniform_gas_table
 from .phonons import PhononResult, PhononSettings, phonons
 
@@ -20,6 +21,7 @@ __all__ = [
     "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
     "relax_structure",
     "PhononResult", "PhononSettings", "phonons",
+    "JelliumSurfaceStudy", "SurfaceSettings", "jellium_surface",
 ]
 
 # vibrational thermodynamics and the quasi-harmonic approximation
