@@ -183,7 +183,6 @@ def _bond_springs(reference, stiffness):
     return solve
 
 
-@pytest.mark.slow
 def test_driver_through_the_phonon_workflow():
     # springs stiffening as V^(-2 gamma) make every frequency scale as V^(-gamma): the
     # real phonon workflow (supercell, displacements, force constants, q-mesh) must give
