@@ -226,7 +226,7 @@ def fit_separable_form(valence: float, targets: Sequence[AtomTarget], start: Map
                        charge_scale: float = 1e-3, softness_cutoff: float | None = None,
                        softness_scale: float = 1e-2, bounds: Mapping[str, tuple] | None = None,
                        functional="lda-pz81", basis: RadialBasis | None = None,
-                       max_iterations: int = 40, log=None) -> FitReport:
+                       max_iterations: int = 40, log=None, extra_residuals=None) -> FitReport:
     """Least-squares fit of the parameters named in ``free`` to all-electron targets.
 
     Parameters
@@ -251,6 +251,10 @@ def fit_separable_form(valence: float, targets: Sequence[AtomTarget], start: Map
         the finite-difference Jacobian).
     log : callable, optional
         Called with a progress line whenever the cost improves.
+    extra_residuals : callable parameters -> sequence of float, optional
+        Further dimensionless residuals (e.g. levels of the atom in a sphere, which
+        keep the scattering right up to higher energies and ghost states out),
+        appended to the sum of squares as they are.
     """
     basis = basis or radial_basis()
     free = list(free)
@@ -271,6 +275,11 @@ def fit_separable_form(valence: float, targets: Sequence[AtomTarget], start: Map
             a = atoms[0]
             res += [kinetic_energy_above(basis, u, _LETTERS.index(k[1]), softness_cutoff)
                     / softness_scale for k, u in a.orbitals.items()]
+        if extra_residuals is not None:
+            try:
+                res += [float(v) for v in extra_residuals(p)]
+            except (np.linalg.LinAlgError, ValueError):
+                return np.full(n_res[0], 1e3)
         count[0] += 1
         cost = 0.5 * float(np.sum(np.square(res)))
         if cost < best[0]:

@@ -8,6 +8,8 @@ from .band_structure import BandStructure, band_structure, empirical_band_struct
 from .convergence import ConvergenceStudy, converge_settings
 from .density_of_states import DOSResult, density_of_states
 from .equation_of_state import VolumeScan, scan_volumes
+from .pseudo_table import TableEntryResult, fit_pseudopotential
+from .lattice_test_set import LatticeTestSet, lattice_test_set
 from .relaxation import RelaxationResult, RelaxationSettings, relax_lattice, relax_structure
 from .structures import StructureComparison, compare_structures
 from .uniform_gas import UniformGasReport, testbench_report, uniform_gas_table
@@ -17,5 +19,6 @@ __all__ = [
     "converge_settings", "DOSResult", "density_of_states", "VolumeScan", "scan_volumes",
     "StructureComparison", "compare_structures", "UniformGasReport", "testbench_report",
     "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
-    "relax_structure",
+    "relax_structure", "TableEntryResult", "fit_pseudopotential",
+    "LatticeTestSet", "lattice_test_set",
 ]
