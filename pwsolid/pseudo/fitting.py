@@ -43,7 +43,7 @@ from .atom import (RadialBasis, channel_matrices, nonlocal_matrix, radial_basis,
 from .local import GaussianLocal
 from .separable import ProjectorChannel, hgh_off_diagonal
 
-__all__ = ["AtomTarget", "all_electron_targets", "separable_form", "fit_separable_form",
+__all__ = ["AtomTarget", "all_electron_targets", "outside_charge", "separable_form", "fit_separable_form",
            "FitReport", "channel_spectrum", "kinetic_energy_above"]
 
 _LETTERS = "spdf"
@@ -68,8 +68,33 @@ class AtomTarget:
     outside_charge: dict
 
 
-def _outside(basis: RadialBasis, u: np.ndarray, radius: float) -> float:
-    return float(basis.weights @ (u * u * (basis.points > radius)))
+def outside_charge(basis: RadialBasis, u: np.ndarray, radius: float) -> float:
+    """int_R^r_max u^2 dr of an orbital given at ``basis.points`` (a spline of the basis).
+
+    The step at R is integrated exactly: whole knot intervals above R by their Gauss
+    points, the interval holding R by Gauss-Legendre points on [R, its right end] with the
+    spline evaluated there. (Counting only the Gauss points beyond R errs by up to a
+    point's weight times u^2, about 0.01 e at 2 bohr on the usual grids, and differently
+    on the all-electron and pseudo grids, so it does not cancel between them.)
+    """
+    from scipy.interpolate import BSpline
+
+    breaks = np.unique(basis.knots)
+    if radius <= breaks[0]:
+        return float(basis.weights @ (u * u))
+    if radius >= breaks[-1]:
+        return 0.0
+    k = int(np.searchsorted(breaks, radius, side="right")) - 1
+    right = breaks[k + 1]
+    whole = float(basis.weights @ (u * u * (basis.points > right)))
+    coeff = np.linalg.lstsq(basis.values, u, rcond=None)[0]
+    spline = BSpline(basis.knots, np.concatenate([[0.0], coeff, [0.0]]), basis.degree)
+    x, w = np.polynomial.legendre.leggauss(basis.degree + 4)
+    r = 0.5 * (right - radius) * (x + 1) + radius
+    return whole + float(0.5 * (right - radius) * (w @ spline(r) ** 2))
+
+
+_outside = outside_charge
 
 
 def all_electron_targets(z: float, core: str, configurations: Sequence[str],

@@ -38,7 +38,7 @@ import numpy as np
 from ..errors import ConvergenceWarning, InputError
 from ..resources import pseudopotential_dir
 from .atom import RadialBasis, radial_basis, solve_radial_atom
-from .fitting import all_electron_targets, fit_separable_form, separable_form
+from .fitting import all_electron_targets, fit_separable_form, outside_charge, separable_form
 
 __all__ = ["TABLE_DIRECTORY", "TABLE_SETS", "FitTargets", "TableFit", "load_targets",
            "table_file", "fit_entry", "evaluate_entry", "ghost_levels", "targets_fingerprint",
@@ -252,10 +252,6 @@ class TableFit:
         return "\n".join(lines)
 
 
-def _outside(basis: RadialBasis, u: np.ndarray, radius: float) -> float:
-    return float(basis.weights @ (u * u * (basis.points > radius)))
-
-
 def _rows(targets: FitTargets, functional: str, parameters: Mapping, ae_fitted, ae_tests):
     local, channels = separable_form(targets.valence, parameters)
     basis = pseudo_basis()
@@ -268,7 +264,7 @@ def _rows(targets: FitTargets, functional: str, parameters: Mapping, ae_fitted, 
                                          functional=functional, basis=basis, max_iterations=200)
             ok &= atom.converged
             for k, e in t.eigenvalues.items():
-                dq = {R: _outside(basis, atom.orbitals[k], R) - q
+                dq = {R: outside_charge(basis, atom.orbitals[k], R) - q
                       for (kk, R), q in t.outside_charge.items() if kk == k}
                 rows.append({"configuration": t.configuration, "shell": k, "fitted": fitted,
                              "all_electron": e, "eigenvalue_error": atom.eigenvalues[k] - e,

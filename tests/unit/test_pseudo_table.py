@@ -117,3 +117,19 @@ def test_input_with_an_unknown_set_is_refused(tmp_path):
     with pytest.raises(InputError) as info:
         parse_input(_input(tmp_path, 'fitted_table = "hartree-fock"'))
     assert "fitted_table" in str(info.value) and "lda" in str(info.value)
+
+
+def test_outside_charge_of_the_hydrogen_ground_state_is_exact():
+    # u = 2 r exp(-r): int_R^inf u^2 dr = exp(-2R) (1 + 2R + 2R^2) (analytic)
+    import numpy as np
+
+    from pwsolid.pseudo.atom import radial_basis
+    from pwsolid.pseudo.fitting import outside_charge
+
+    basis = radial_basis(r_max=50.0, intervals=110, first_step=1e-3)
+    u = 2 * basis.points * np.exp(-basis.points)
+    for radius in (0.5, 1.5, 2.2):
+        exact = np.exp(-2 * radius) * (1 + 2 * radius + 2 * radius ** 2)
+        # 1e-9: the spline's own representation error of u, far below the 1e-3 of
+        # counting the Gauss points beyond R
+        assert abs(outside_charge(basis, u, radius) - exact) < 1e-9
