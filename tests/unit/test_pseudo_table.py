@@ -133,3 +133,21 @@ def test_outside_charge_of_the_hydrogen_ground_state_is_exact():
         # 1e-9: the spline's own representation error of u, far below the 1e-3 of
         # counting the Gauss points beyond R
         assert abs(outside_charge(basis, u, radius) - exact) < 1e-9
+
+
+@pytest.mark.parametrize("argv, word", [
+    (["fit-pseudopotential", "Xx"], "Xx"),
+    (["fit-pseudopotential", "Si", "--set", "hf"], "--set"),
+    (["fit-pseudopotential"], "--all"),
+    (["lattice-test-set", "--set", "hf"], "set"),
+    (["lattice-test-set", "--solids", "Unobtainium"], "Unobtainium"),
+])
+def test_table_commands_refuse_bad_input_with_one_message(argv, word, capsys, tmp_path,
+                                                          monkeypatch):
+    from pwsolid.cli import main
+    from pwsolid.errors import EXIT_INVALID_INPUT
+
+    monkeypatch.chdir(tmp_path)
+    assert main(argv) == EXIT_INVALID_INPUT
+    err = capsys.readouterr().err
+    assert word in err and "Traceback" not in err
