@@ -52,7 +52,7 @@ TABLE_SETS = {"lda": "lda-pz81", "pbe": "pbe"}
 GHOST_SPHERE = 10.0         # bohr
 GHOST_CEILING = 2.0         # Ha
 #: Ha of sphere-level error that weigh as 1 mHa of valence eigenvalue error in the fit
-SPHERE_SCALE = 0.02
+SPHERE_SCALE = 0.05
 EIGENVALUE_GOAL = 1e-3      # Ha
 CHARGE_GOAL = 1e-2          # electrons
 _LETTERS = "spd"
@@ -155,7 +155,8 @@ class FitTargets:
 def targets_fingerprint(targets: FitTargets, functional: str) -> str:
     """SHA-256 of the specification and functional: a written file is current when its
     recorded fingerprint equals this (resume skips it)."""
-    text = json.dumps({"targets": targets.as_dict(), "functional": functional},
+    text = json.dumps({"targets": targets.as_dict(), "functional": functional,
+                       "sphere_scale": SPHERE_SCALE, "ghost_sphere": GHOST_SPHERE},
                       sort_keys=True, separators=(",", ":"))
     return hashlib.sha256(text.encode()).hexdigest()
 
