@@ -110,6 +110,7 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
                                   "radius_bohr": pp.partial_core.radius})}
             for s, pp in setup.pseudopotentials.items()},
         "settings": setup.settings.as_dict(),
+        "exchange_correlation": _functional_block(setup.functional),
         "forces": None if forces is None else forces.as_document(),
         "stress": None if stress is None else stress.as_document(),
         "input": input_echo,
@@ -119,6 +120,13 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
                   "kpoints": "fractional coordinates of the reciprocal lattice vectors"},
     }
     return doc
+
+
+def _functional_block(functional) -> dict:
+    """Which functional, and from where (a Libxc one names the Libxc version)."""
+    return {"name": getattr(functional, "name", str(functional)),
+            "description": getattr(functional, "description", ""),
+            "origin": getattr(functional, "origin", "")}
 
 
 def _band_edges(gs: GroundState, kf: np.ndarray) -> dict | None:

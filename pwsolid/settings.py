@@ -215,7 +215,8 @@ SETTINGS_TABLE: tuple[Setting, ...] = (
     Setting("brillouin_zone.use_symmetry", "use_symmetry", "boolean",
             "reduce k-points to the irreducible wedge, symmetrise n(r)"),
     Setting("exchange_correlation.functional", "functional", "name",
-            "exchange-correlation functional by registry name (pwsolid.xc), or file:PATH"),
+            "exchange-correlation functional by registry name (pwsolid.xc), file:PATH, "
+            "or libxc:NAME[+NAME] (needs the Libxc C library)"),
     Setting("occupations.smearing", "smearing", "name",
             "none (Aufbau filling, insulators) or a smearing scheme (for metals)",
             choices=_smearing_names),

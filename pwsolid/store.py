@@ -206,7 +206,7 @@ IDENTITY_FIELDS: tuple[IdentityField, ...] = (
     IdentityField("use_symmetry", "k-points reduced and density symmetrised",
                   lambda c: bool(c.settings.use_symmetry), ("use_symmetry",)),
     IdentityField("functional", "exchange-correlation functional",
-                  lambda c: str(c.settings.as_dict()["functional"]), ("functional",)),
+                  lambda c: _functional_identity(c), ("functional",)),
     IdentityField("pseudopotentials", "SHA-256 of each species' pseudopotential file",
                   lambda c: {s: _file_hash(pp) for s, pp in sorted(c.pseudopotentials.items())},
                   ("pseudopotentials",)),
@@ -651,3 +651,14 @@ def load_density(path, setup=None, *, accept_mismatch: bool = False) -> dict:
     return {**record.arrays, "species": record.fingerprint.get("species", []),
             "functional": record.fingerprint.get("functional"),
             "fingerprint": record.fingerprint, "mismatches": record.mismatches}
+
+
+def _functional_identity(c) -> str:
+    """The functional's name; a Libxc functional by its canonical name (however it was
+    spelt) and the Libxc version, since another version may give other values."""
+    from .xc.libxc_bridge import is_libxc_spec, libxc_functional, libxc_version
+
+    text = str(c.settings.as_dict()["functional"])
+    if not is_libxc_spec(text):
+        return text
+    return f"{libxc_functional(text).name} (Libxc {libxc_version()})"

@@ -37,7 +37,8 @@ def register(subparsers) -> None:
                     "conditions. Writes a JSON report and plots per functional. Exit "
                     "code 0 even when a condition fails; 3 for bad input.")
     parser.add_argument("functionals", nargs="*", metavar="FUNCTIONAL",
-                        help="registry name or file:path/to/functional.py "
+                        help="registry name, file:path/to/functional.py or "
+                             "libxc:NAME[+NAME] (Libxc's LDA and GGA functionals) "
                              f"(default {_DEFAULT_FUNCTIONAL} when no --user-file is given)")
     parser.add_argument("--user-file", action="append", default=[], metavar="FILE",
                         help="Python functional file to test (repeatable); it is executed")

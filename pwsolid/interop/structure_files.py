@@ -172,9 +172,8 @@ def read_structure(path, *, symmetry_tolerance: float = DEFAULT_SYMMETRY_TOLERAN
     try:
         atoms = ase_io.read(str(path), index=index, format=file_format)
     except Exception as exc:        # the atomistic library raises many types for unreadable files
-        raise InputError(f"the atomistic library could not read this structure file ({type(exc).__name__}: "
-                         f"{exc}); give a CIF or another format the atomistic library reads",
-                         key="crystal.structure_file", source=name) from None
+        raise InputError(_read_failure(exc), key="crystal.structure_file",
+                         source=name) from None
     if symmetrize:
         atoms, moved = _refined(atoms, symmetry_tolerance, name)
     crystal, notes = _convert(atoms, name)
@@ -187,6 +186,17 @@ def read_structure(path, *, symmetry_tolerance: float = DEFAULT_SYMMETRY_TOLERAN
     sym = find_symmetry(crystal, symmetry_tolerance)
     return StructureImport(crystal, sym.international_symbol, int(sym.space_group_number),
                            float(symmetry_tolerance), name, notes)
+
+
+def _read_failure(exc: Exception) -> str:
+    """What went wrong reading a file; the library's KeyError of a symbol is a species."""
+    what = exc.args[0] if exc.args else None
+    if isinstance(exc, KeyError) and isinstance(what, str) and what.isalpha():
+        return (f"unknown species {what!r} in the structure file: sites must carry "
+                "element symbols of the periodic table (e.g. 'Si', 'Ga')")
+    return (f"the atomistic library could not read this structure file "
+            f"({type(exc).__name__}: {exc}); give a CIF or another format the atomistic "
+            "library reads")
 
 
 def _refined(atoms, tolerance: float, source: str):

@@ -25,7 +25,8 @@ References
 ----------
 J. P. Perdew, K. Burke and M. Ernzerhof, Phys. Rev. Lett. 77, 3865 (1996), Eqs. (3),
 (4), (7), (8), (13), (14); correlation on top of J. P. Perdew and Y. Wang, Phys. Rev. B
-45, 13244 (1992).
+45, 13244 (1992), with the more precise A constants of the PBE form
+(:mod:`pwsolid.xc.pw92_precise`).
 """
 
 from __future__ import annotations
@@ -36,8 +37,10 @@ from typing import Callable
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from .lda import (DENSITY_FLOOR, SLATER_EXCHANGE_COEFFICIENT, pw92_correlation,
-                  pw92_correlation_polarized)
+from .lda import DENSITY_FLOOR, SLATER_EXCHANGE_COEFFICIENT
+# PBE correlation sits on Perdew-Wang 1992 with the PBE form's more precise A constants.
+from .pw92_precise import (pw92_precise_correlation as pw92_correlation,
+                           pw92_precise_correlation_polarized as pw92_correlation_polarized)
 
 __all__ = [
     "PBE_KAPPA",

@@ -469,13 +469,18 @@ def pw92_correlation(n: ArrayLike) -> tuple[Array, Array]:
     return _apply_on_occupied(_pw92_kernel, n, 2)
 
 
-def _pw92_polarized_kernel(up: Array, down: Array) -> tuple[Array, Array, Array]:
+def _pw92_polarized_kernel(up: Array, down: Array,
+                           tables: tuple[PerdewWangParameters, ...] | None = None
+                           ) -> tuple[Array, Array, Array]:
+    # tables: (paramagnetic, ferromagnetic, spin stiffness); None: Table I as printed.
+    para, ferro, stiffness = tables or (PW92_PARAMAGNETIC, PW92_FERROMAGNETIC,
+                                        PW92_SPIN_STIFFNESS)
     total, zeta = _polarization(up, down)
     rs = wigner_seitz_radius(total)
     sqrt_rs = np.sqrt(rs)
-    e_para, rs_de_para = _pw92_g(rs, sqrt_rs, PW92_PARAMAGNETIC)
-    e_ferro, rs_de_ferro = _pw92_g(rs, sqrt_rs, PW92_FERROMAGNETIC)
-    minus_alpha, rs_d_minus_alpha = _pw92_g(rs, sqrt_rs, PW92_SPIN_STIFFNESS)
+    e_para, rs_de_para = _pw92_g(rs, sqrt_rs, para)
+    e_ferro, rs_de_ferro = _pw92_g(rs, sqrt_rs, ferro)
+    minus_alpha, rs_d_minus_alpha = _pw92_g(rs, sqrt_rs, stiffness)
     alpha = -minus_alpha
     rs_dalpha = -rs_d_minus_alpha
 
@@ -520,6 +525,14 @@ def pw92_correlation_polarized(n_up: ArrayLike,
     Table I. The potentials are
     ``v_up = eps_c - (rs/3) d eps_c/d rs + (1 - zeta) d eps_c/d zeta`` and
     ``v_down = eps_c - (rs/3) d eps_c/d rs - (1 + zeta) d eps_c/d zeta``.
+
+    ``f''(0)`` is the exact ``4 / (9 (2^(1/3) - 1))``, not the six printed digits
+    1.709921 (which differ by 6.6e-8; Libxc's ``lda_c_pw`` uses the printed ones, so
+    the two differ by up to 3.5e-8 relative at intermediate polarisation). The paper
+    defines ``f''(0)`` as the second derivative of its f(zeta) at zeta = 0 (below
+    Eq. 9) so that the second term of Eq. (8) is ``alpha_c zeta^2 / 2`` for small
+    zeta, i.e. so that ``alpha_c`` is the spin stiffness; only the exact value keeps
+    that, and the printed value is its rounding.
 
     References
     ----------

@@ -26,6 +26,7 @@ from .extra_lda import (hedin_lundqvist_correlation, hedin_lundqvist_correlation
                         wigner_correlation_polarized)
 from .gga import (pbe_correlation, pbe_correlation_polarized, pbe_exchange,
                   pbe_exchange_polarized)
+from .pw92_precise import pw92_precise_correlation, pw92_precise_correlation_polarized
 from .lda import (DENSITY_FLOOR, pw92_correlation, pw92_correlation_polarized, pz81_correlation,
                   pz81_correlation_polarized, slater_exchange, slater_exchange_polarized)
 
@@ -100,7 +101,8 @@ class Functional:
         given: the other part is absent (e.g. ``slater-exchange`` has no
         correlation).
     origin : str
-        Where it came from: ``"built-in"``, ``"file:<path>"`` or ``"callable"``.
+        Where it came from: ``"built-in"``, ``"file:<path>"``, ``"callable"`` or
+        ``"libxc <version>"``.
     gradient, gradient_polarized : GradientKernel, PolarizedGradientKernel or None
         Given for a functional that depends on the density gradient
         (:attr:`needs_gradients`); its ``unpolarized``/``polarized`` kernels are then
@@ -336,15 +338,22 @@ _CORRELATIONS = {
     "lda-pw92": Functional(
         "pw92-correlation", "Perdew-Wang 1992 correlation",
         pw92_correlation, pw92_correlation_polarized),
+    "lda-pw92-precise": Functional(
+        "pw92-precise-correlation",
+        "Perdew-Wang 1992 correlation with the PBE form's more precise A constants",
+        pw92_precise_correlation, pw92_precise_correlation_polarized),
     "lda-vwn": Functional(
         "vwn-correlation", "Vosko-Wilk-Nusair 1980 correlation (fit to Ceperley-Alder)",
         vwn_correlation, vwn_correlation_polarized),
     "lda-wigner": Functional(
-        "wigner-correlation", "Wigner 1934 correlation, independent of spin polarisation",
+        "wigner-correlation",
+        "Wigner 1934 correlation; spin-polarised form pwsolid's own construction "
+        "(taken independent of zeta, no published source)",
         wigner_correlation, wigner_correlation_polarized),
     "lda-hedin-lundqvist": Functional(
         "hedin-lundqvist-correlation",
-        "Hedin-Lundqvist 1971 correlation, spin-scaled ferromagnetic branch",
+        "Hedin-Lundqvist 1971 correlation; spin-polarised form pwsolid's own "
+        "construction (ferromagnetic branch by spin scaling, no published source)",
         hedin_lundqvist_correlation, hedin_lundqvist_correlation_polarized),
     "lda-von-barth-hedin": Functional(
         "von-barth-hedin-correlation", "von Barth-Hedin 1972 correlation",
@@ -367,11 +376,12 @@ PBE_EXCHANGE = gradient_functional(
     pbe_exchange_polarized, lda_parent="slater-exchange")
 #: Perdew-Burke-Ernzerhof 1996 correlation (on Perdew-Wang 1992) as a part of PBE.
 PBE_CORRELATION = gradient_functional(
-    "pbe-correlation", "Perdew-Burke-Ernzerhof 1996 correlation on Perdew-Wang 1992",
-    pbe_correlation, pbe_correlation_polarized, lda_parent="lda-pw92")
+    "pbe-correlation",
+    "Perdew-Burke-Ernzerhof 1996 correlation on Perdew-Wang 1992 (precise A constants)",
+    pbe_correlation, pbe_correlation_polarized, lda_parent="lda-pw92-precise")
 _REGISTRY["pbe"] = combine_exchange_correlation(
     "pbe", "GGA: Perdew-Burke-Ernzerhof 1996 exchange and correlation", PBE_EXCHANGE,
-    PBE_CORRELATION, lda_parent="lda-pw92")
+    PBE_CORRELATION, lda_parent="lda-pw92-precise")
 _REGISTRY["pbe-exchange"] = gradient_functional(
     "pbe-exchange", "Perdew-Burke-Ernzerhof 1996 exchange only, no correlation",
     pbe_exchange, pbe_exchange_polarized, lda_parent="slater-exchange",
@@ -382,6 +392,9 @@ FUNCTIONALS: tuple[str, ...] = tuple(_REGISTRY)
 
 #: Prefix of a functional specification naming a Python file, ``"file:/path/x.py"``.
 FILE_PREFIX = "file:"
+#: Prefix of a functional specification naming Libxc functionals, ``"libxc:gga_x_pbe"``
+#: (:mod:`pwsolid.xc.libxc_bridge`).
+LIBXC_PREFIX = "libxc:"
 
 # Functionals registered at run time under a name of their own (register_functional).
 _USER_REGISTRY: dict[str, Functional] = {}
@@ -422,9 +435,11 @@ def register_functional(functional: Functional, *, replace: bool = False) -> Fun
         raise InputError("register_functional takes a Functional", key=_KEY,
                          value=functional, has_value=True)
     key = _normalized(functional.name)
-    if not key or key.startswith(FILE_PREFIX) or any(c.isspace() for c in key):
+    if (not key or key.startswith((FILE_PREFIX, LIBXC_PREFIX))
+            or any(c.isspace() for c in key)):
         raise InputError("a functional's name must be non-empty, without blanks and not "
-                         f"start with '{FILE_PREFIX}'", key=_KEY, value=functional.name)
+                         f"start with '{FILE_PREFIX}' or '{LIBXC_PREFIX}'", key=_KEY,
+                         value=functional.name)
     if key in _REGISTRY:
         raise InputError("this name belongs to a built-in functional; choose another",
                          key=_KEY, value=functional.name)
@@ -448,6 +463,8 @@ def get_functional(spec: str | UnpolarizedKernel | Functional) -> Functional:
     spec : str, callable or Functional
         A name of :data:`FUNCTIONALS` or one registered with
         :func:`register_functional` (case and surrounding blanks ignored);
+        ``"libxc:<name>[+<name>...]"``, functionals of the Libxc C library
+        (:func:`pwsolid.xc.libxc_bridge.libxc_functional`, LDA and GGA families);
         ``"file:/path/to/functional.py"``, a Python file loaded with
         :func:`pwsolid.xc.load_user_functional` (this runs the file's code; a
         relative path is taken from the working directory, so callers holding an
@@ -473,12 +490,17 @@ def get_functional(spec: str | UnpolarizedKernel | Functional) -> Functional:
             from .user import load_user_functional   # user imports this module
 
             return load_user_functional(text[len(FILE_PREFIX):].strip())
+        if text.lower().startswith(LIBXC_PREFIX):
+            from .libxc_bridge import libxc_functional   # the bridge imports this module
+
+            return libxc_functional(text)
         key = _normalized(text)
         found = _REGISTRY.get(key) or _USER_REGISTRY.get(key)
         if found is None:
             raise InputError("unknown exchange-correlation functional; valid names are "
                              + ", ".join(repr(name) for name in available_functionals())
-                             + f", or '{FILE_PREFIX}path/to/functional.py'",
+                             + f", '{LIBXC_PREFIX}<Libxc name>' or "
+                             f"'{FILE_PREFIX}path/to/functional.py'",
                              key=_KEY, value=spec)
         return found
     if callable(spec):

@@ -86,7 +86,7 @@ def test_pbe_is_perdew_wang_with_slater_exchange_at_zero_gradient(rng):
     n = 10.0 ** rng.uniform(-5.0, 2.0, 200)
     zeta = rng.uniform(-1.0, 1.0, 200)
     up, down = 0.5 * n * (1 + zeta), 0.5 * n * (1 - zeta)
-    pbe, parent = get_functional("pbe"), get_functional("lda-pw92")
+    pbe, parent = get_functional("pbe"), get_functional("lda-pw92-precise")
     for mine, theirs in ((pbe.evaluate(n), parent.evaluate(n)),
                          (pbe.evaluate_polarized(up, down),
                           parent.evaluate_polarized(up, down))):
@@ -118,7 +118,7 @@ def test_vacuum_and_negative_densities_give_finite_zeros():
 def test_registry_entries():
     pbe = get_functional(" PBE ")
     assert "pbe" in FUNCTIONALS and "pbe-exchange" in FUNCTIONALS
-    assert pbe.needs_gradients and pbe.lda_parent == "lda-pw92"
+    assert pbe.needs_gradients and pbe.lda_parent == "lda-pw92-precise"
     assert pbe.exchange.needs_gradients and pbe.correlation.needs_gradients
     assert get_functional("pbe-exchange").correlation is None
     assert not get_functional("lda-pz81").needs_gradients
@@ -152,7 +152,7 @@ def test_grid_energy_uses_the_analytic_gradient_of_a_cosine():
     e, *_ = get_functional("pbe").evaluate_gradient(density[:, 0, 0], gradient ** 2)
     np.testing.assert_allclose(result.energy_density[:, 0, 0], e, rtol=1e-12)
     # and it differs from the zero-gradient energy, or the test would be empty
-    local = exchange_correlation_on_grid(get_functional("lda-pw92"), density)
+    local = exchange_correlation_on_grid(get_functional("lda-pw92-precise"), density)
     assert np.max(np.abs(result.energy_density - local.energy_density)) > 1e-6
 
 
@@ -160,7 +160,7 @@ def test_grid_without_fft_is_refused_and_local_path_unchanged():
     _, fft, g, density, _ = _cosine_cell()
     with pytest.raises(ValueError, match="gradient"):
         exchange_correlation_on_grid(get_functional("pbe"), density)
-    lda = get_functional("lda-pw92")
+    lda = get_functional("lda-pw92-precise")
     eps, v = lda.evaluate(density)
     result = exchange_correlation_on_grid(lda, density, fft, g)
     np.testing.assert_array_equal(result.energy_density, density * eps)
@@ -171,11 +171,11 @@ def test_uniform_density_gives_the_local_potential():
     _, fft, g, density, _ = _cosine_cell()
     flat = np.full_like(density, 0.02)
     pbe = exchange_correlation_on_grid(get_functional("pbe"), flat, fft, g)
-    lda = exchange_correlation_on_grid(get_functional("lda-pw92"), flat, fft, g)
+    lda = exchange_correlation_on_grid(get_functional("lda-pw92-precise"), flat, fft, g)
     np.testing.assert_allclose(pbe.potential, lda.potential, rtol=1e-13)
     spins = np.stack([0.7 * flat, 0.3 * flat])
     pbe = exchange_correlation_on_grid(get_functional("pbe"), spins, fft, g)
-    lda = exchange_correlation_on_grid(get_functional("lda-pw92"), spins, fft, g)
+    lda = exchange_correlation_on_grid(get_functional("lda-pw92-precise"), spins, fft, g)
     np.testing.assert_allclose(pbe.potential, lda.potential, rtol=1e-13)
 
 
@@ -184,7 +184,7 @@ def test_testbench_report_of_a_gradient_functional():
 
     report = testbench_report("pbe", rs_values=(1.0, 5.0), zeta_values=(0.0, 1.0))
     doc = report.as_document()
-    assert doc["functional"]["needs_gradients"] and doc["functional"]["lda_parent"] == "lda-pw92"
+    assert doc["functional"]["needs_gradients"] and doc["functional"]["lda_parent"] == "lda-pw92-precise"
     assert doc["table"]["gradient"].startswith("zero")
     gradient = report.gradient
     # F_x(0) = 1 and F_x grows with s towards 1 + kappa (PBE 1996, Eq. 14)
@@ -195,7 +195,7 @@ def test_testbench_report_of_a_gradient_functional():
     fraction = -gradient.correlation_gradient_term / gradient.local_correlation[:, None]
     assert np.all(fraction > 0) and np.all(fraction < 1) and fraction[:, -1].min() > 0.99
     assert "gradient_dependence" in doc
-    assert testbench_report("lda-pw92", rs_values=(1.0,)).gradient is None
+    assert testbench_report("lda-pw92-precise", rs_values=(1.0,)).gradient is None
 
 
 def test_testbench_plot_has_a_gradient_panel():
@@ -205,7 +205,7 @@ def test_testbench_plot_has_a_gradient_panel():
     from pwsolid.plots.xc import UniformGasPlot
     from pwsolid.workflows.uniform_gas import testbench_report
 
-    plot = UniformGasPlot.from_report(testbench_report("pbe", ["lda-pw92"]))
+    plot = UniformGasPlot.from_report(testbench_report("pbe", ["lda-pw92-precise"]))
     assert plot.n_panels == 4
     fig, axes = new_axes(1, 4)
     try:

@@ -133,6 +133,15 @@ def test_molecule_slab_and_bad_files_are_refused(tmp_path):
         read_structure(junk)
 
 
+def test_unknown_species_is_named(tmp_path):
+    # the rock-salt CIF with an element symbol that does not exist (issue 18, bad input)
+    text = (DATA / "sodium-chloride-rocksalt.cif").read_text()
+    unknown = tmp_path / "unknown.cif"
+    unknown.write_text(text.replace("Cl1 Cl", "Xx1 Xx"))
+    with pytest.raises(InputError, match="unknown species 'Xx'"):
+        read_structure(unknown)
+
+
 def test_missing_library_names_the_extra():
     with pytest.raises(MissingExtraError, match=r'pip install "pwsolid\[nothing\]"'):
         require("a_module_that_does_not_exist_here", "nothing", "this feature")

@@ -206,7 +206,7 @@ def test_mismatched_spin_shapes_are_rejected():
 # --- registry --------------------------------------------------------------------
 
 def test_registry_names():
-    assert xc.FUNCTIONALS == ("lda-pz81", "lda-pw92", "lda-vwn", "lda-wigner",
+    assert xc.FUNCTIONALS == ("lda-pz81", "lda-pw92", "lda-pw92-precise", "lda-vwn", "lda-wigner",
                               "lda-hedin-lundqvist", "lda-von-barth-hedin",
                               "slater-exchange", "pbe", "pbe-exchange")
     for name in xc.FUNCTIONALS:

@@ -103,12 +103,25 @@ def test_compressed_cell_pushes_outward():
     assert si.calc.pressure_gpa() > 5.0
 
 
+# no bundled default for Ga and As (the inputs name these files)
+_GALLIUM_ARSENIDE = {"Ga": "Ga-hartwigsen-goedecker-hutter.toml",
+                     "As": "As-hartwigsen-goedecker-hutter.toml"}
+
+
 @pytest.mark.parametrize("name, prototype", [
     # Fd-3m Si on 8a, a = 5.431020511 angstrom (CODATA 2018); primitive cell
     ("silicon-diamond.cif", lambda: __import__("pwsolid").diamond(5.431020511 / BOHR_ANGSTROM, "Si")),
     # P6_3/mmc Mg on 2c, a = 3.2094, c = 5.2108 angstrom (from memory)
     ("magnesium-hcp.cif", lambda: __import__("pwsolid").hexagonal_close_packed(
         3.2094 / BOHR_ANGSTROM, "Mg", 5.2108 / 3.2094)),
+    # rock salt: no chlorine pseudopotential is bundled for the NaCl CIF (its crystal is
+    # checked in tests/unit/test_structure_files.py), so rock-salt LiH carries the energy
+    # check: Fm-3m, Li on 4a, H on 4b, a = 4.083 angstrom (from memory)
+    ("lithium-hydride-rocksalt.cif", lambda: __import__("pwsolid").rocksalt(
+        4.083 / BOHR_ANGSTROM, ("Li", "H"))),
+    # F-43m GaAs, Ga on 4a, As on 4c, a = 5.6533 angstrom (from memory)
+    ("gallium-arsenide-zincblende.cif", lambda: __import__("pwsolid").zincblende(
+        5.6533 / BOHR_ANGSTROM, ("Ga", "As"))),
 ])
 def test_structure_file_gives_the_prototype_energy(name, prototype):
     # the same crystal in another orientation or description has the same energy: the
@@ -121,7 +134,9 @@ def test_structure_file_gives_the_prototype_energy(name, prototype):
     # a mesh through Gamma keeps the hexagonal symmetry (a half-step shift does not)
     settings = GroundStateSettings(cutoff=6.0, kpoint_mesh=(2, 2, 2), kpoint_shift=(0, 0, 0),
                                    energy_tolerance=1e-11,
-                                   density_tolerance=1e-9, smearing="cold", smearing_width=0.01)
+                                   density_tolerance=1e-9, smearing="cold", smearing_width=0.01,
+                                   pseudopotentials=_GALLIUM_ARSENIDE if "gallium" in name
+                                   else {})
     e_file = ground_state(imported, settings).free_energy
     e_proto = ground_state(prototype(), settings).free_energy
     assert e_file == pytest.approx(e_proto, abs=1e-8)

@@ -9,6 +9,7 @@ import pytest
 
 from pwsolid.config import load_input
 from pwsolid.errors import InputError
+from pwsolid.xc.libxc_bridge import libxc_available
 
 CRYSTAL = '[crystal]\nprototype = "diamond"\nlattice_constant = "5.43 angstrom"\nspecies = ["Si"]\n'
 EXPLICIT = ('[crystal]\nprototype = "explicit"\nlattice_constant = "5.43 angstrom"\n'
@@ -184,6 +185,16 @@ CASES = [
      "relaxation.moves", "accepted: positions, cell, both"),
     ("misspelt relaxation key", CRYSTAL + '[relaxation]\nforce_treshold = "1e-4 Ha/bohr"\n',
      "relaxation.force_treshold", "did you mean 'relaxation.force_threshold'?"),
+    # Libxc names: without the library the message says how to install it
+    ("unknown Libxc name", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:gga_c_pbee"\n',
+     "exchange_correlation.functional",
+     "'gga_c_pbe'" if libxc_available() else "apt-get install libxc9"),
+    ("Libxc meta-GGA", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:mgga_x_scan"\n',
+     "exchange_correlation.functional",
+     "is a meta-GGA" if libxc_available() else "apt-get install libxc9"),
+    ("Libxc hybrid", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:hyb_gga_xc_pbeh"\n',
+     "exchange_correlation.functional",
+     "exact (Fock) exchange" if libxc_available() else "apt-get install libxc9"),
 ]
 
 

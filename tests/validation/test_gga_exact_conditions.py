@@ -104,9 +104,9 @@ def test_a_wrong_gradient_coefficient_fails():
                 *(2 * d for d in full[3:]))
 
     correlation = gradient_functional("doubled", "PBE with 2 H", doubled, doubled_polarized,
-                                      lda_parent="lda-pw92")
+                                      lda_parent="lda-pw92-precise")
     functional = combine_exchange_correlation("doubled-pbe", "test", get_functional(
-        "pbe").exchange, correlation, lda_parent="lda-pw92")
+        "pbe").exchange, correlation, lda_parent="lda-pw92-precise")
     results = _by_name(functional)
     assert results["correlation-gradient-coefficient"].passed is False
     assert results["correlation-vanishes-at-large-gradient"].passed is False
