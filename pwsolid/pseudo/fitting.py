@@ -151,7 +151,7 @@ def separable_form(valence: float, parameters: Mapping[str, float]
 
 
 def kinetic_energy_above(basis: RadialBasis, u: np.ndarray, l: int, cutoff: float,
-                         n_q: int = 600) -> float:
+                         n_q: int = 160) -> float:
     """Kinetic energy (Ha) that orbital u = rR carries in plane waves above ``cutoff`` (Ha).
 
     With phi(q) = int u(r) r j_l(q r) dr, (2/pi) int phi^2 q^2 dq = 1 and the kinetic
