@@ -15,6 +15,7 @@ the windows of shared/REFERENCES.md section 6b.
 
 from __future__ import annotations
 
+import hashlib
 import math
 import warnings
 from dataclasses import dataclass, field
@@ -23,7 +24,7 @@ from typing import Callable, Sequence
 
 from .. import crystal as builders
 from ..errors import ConvergenceWarning, InputError
-from ..pseudo.table import TABLE_SETS, table_file
+from ..pseudo.table import TABLE_DIRECTORY, TABLE_SETS, table_file
 from ..settings import GroundStateSettings
 from ..units import BOHR_ANGSTROM, HA_PER_BOHR3_GPA
 from .equation_of_state import scan_volumes
@@ -176,7 +177,7 @@ def lattice_test_set(set_name: str = "lda", solids: Sequence[str] | None = None,
             for e in s.species:
                 r = read_record(table_file(e, set_name))
                 recorded.append(r["record"].get("cutoff", {}).get("cutoff_1meV_Ha", 40.0))
-        cutoff = 1.2 * max(recorded, default=30.0)
+        cutoff = round(1.2 * max(recorded, default=30.0), 1)
     results = []
     for i, solid in enumerate(chosen):
         a_ref, b_ref = solid.reference[set_name]
@@ -198,7 +199,9 @@ def lattice_test_set(set_name: str = "lda", solids: Sequence[str] | None = None,
         a0 = a_ref * (fit.v0 / crystal.volume) ** (1 / 3)
         results.append(SolidResult(solid.name, float(a0), float(fit.b0 * HA_PER_BOHR3_GPA),
                                    a_ref, b_ref, all(p.converged for p in scan.points),
-                                   {e: p.name for e, p in files.items()}))
+                                   {e: {"file": f"{TABLE_DIRECTORY}/{set_name}/{p.name}",
+                                        "sha256": hashlib.sha256(p.read_bytes()).hexdigest()}
+                                    for e, p in files.items()}))
         if progress is not None:
             progress(i + 1, len(chosen), solid.name)
     return LatticeTestSet(set_name, float(cutoff), results, skipped)
