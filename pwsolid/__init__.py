@@ -33,6 +33,8 @@ from .workflows import (BandStructure, ConvergenceStudy, DOSResult, StructureCom
                         scan_volumes, testbench_report, uniform_gas_table)
 from .workflows.relaxation import (RelaxationResult, RelaxationSettings, relax_lattice,
                                    relax_structure)
+from .workflows.phonons import PhononResult, PhononSettings, phonons
+from .workflows.jellium_surface import JelliumSurfaceStudy, SurfaceSettings, jellium_surface
 from .xc import FUNCTIONALS, get_functional, load_user_functional
 from .xc.conditions import check_exact_conditions
 
@@ -63,4 +65,6 @@ __all__ = [
     "load_user_functional", "check_exact_conditions", "WavefunctionStart",
     "AtomicForces", "atomic_forces", "StressTensor", "stress_tensor",
     "relax_structure", "relax_lattice", "RelaxationSettings", "RelaxationResult",
+    "PhononResult", "PhononSettings", "phonons",
+    "jellium_surface", "SurfaceSettings", "JelliumSurfaceStudy",
 ]

@@ -32,6 +32,7 @@ import numpy as np
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
 from .relaxation_keys import RELAXATION_KEYS, read_relaxation
+from .phonon_keys import PHONON_KEYS, read_phonons
 from .resources import inputs_dir, pseudopotential_dir
 from .settings import SETTINGS_TABLE, UNIT_TEXT, GroundStateSettings, Setting
 from .preflight import check_cell_shape
@@ -167,6 +168,13 @@ RELAXATION_TABLE: tuple[Setting, ...] = tuple(
             unit=unit, default_text=default)
     for key, kind, unit, default, meaning in RELAXATION_KEYS)
 
+#: Keys of [phonons] (the phonons command), read by :func:`pwsolid.phonon_keys.read_phonons`.
+PHONON_TABLE: tuple[Setting, ...] = tuple(
+    Setting(f"phonons.{key}", None,
+            kind if kind in ("name", "integer", "boolean") else "anything", meaning,
+            unit=unit, default_text=default)
+    for key, kind, unit, default, meaning in PHONON_KEYS)
+
 #: key of [pseudopotentials] naming a set of pwsolid's fitted table (pwsolid.pseudo.table)
 _FITTED_TABLE_KEY = "fitted_table"
 
@@ -176,6 +184,7 @@ INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     **_settings_tables(),
     "output": OUTPUT_KEYS,
     "relaxation": RELAXATION_TABLE,
+    "phonons": PHONON_TABLE,
 }
 _SETTINGS_SECTIONS = tuple(_settings_tables())
 _SCHEMA: dict[str, dict[str, Setting]] = {
@@ -283,6 +292,7 @@ class RunInput:
     checkpoint_file: Path | None = None
     checkpoint_interval: int = 1
     relaxation: Any = None     # RelaxationSettings of the [relaxation] table (or defaults)
+    phonons: Any = None        # PhononSettings of the [phonons] table (or defaults)
 
 
 # -- reading -------------------------------------------------------------
@@ -358,7 +368,11 @@ def parse_input(document: Mapping, *, source: str | None = None,
     _check_cell_shape(run, source)
     table = document.get("relaxation")          # [relaxation]: see relaxation_keys.py
     echo = run.echo if table is None else {**run.echo, "relaxation": dict(table)}
-    return replace(run, relaxation=read_relaxation(table, source), echo=echo)
+    phonon_table = document.get("phonons")      # [phonons]: see phonon_keys.py
+    if phonon_table is not None:
+        echo = {**echo, "phonons": dict(phonon_table)}
+    return replace(run, relaxation=read_relaxation(table, source), echo=echo,
+                   phonons=read_phonons(phonon_table, source))
 
 
 def _check_cell_shape(run: RunInput, source: str | None) -> None:

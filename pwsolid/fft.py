@@ -248,6 +248,95 @@ class FFTGrid:
         self.n_transforms += 2 * nb
         return out
 
+    def apply_prepared_meta(self, coefficients: np.ndarray, grid_index: np.ndarray,
+                            prepared: np.ndarray, prepared_tau: np.ndarray,
+                            kpg2: np.ndarray) -> np.ndarray:
+        """Basis coefficients of ``V psi - 1/2 div(v_tau grad psi)`` for a block.
+
+        Parameters
+        ----------
+        coefficients : (nb, n_pw) complex
+        grid_index : (n_pw,) int
+        prepared : from :meth:`prepare_potential` of ``V + (1/4) lap v_tau``
+        prepared_tau : from :meth:`prepare_potential` of ``v_tau``
+        kpg2 : (n_pw,) float, ``|k+G|^2``
+
+        Notes
+        -----
+        With ``div(v grad psi) = [lap(v psi) + v lap psi - psi lap v] / 2`` the
+        generalised Kohn-Sham term takes two transforms each way instead of the
+        four each way of the three gradient components:
+
+            out = F[(V + lap v/4) psi + (v/4) F^-1[|k+G|^2 c]] + |k+G|^2 F[v psi] / 4.
+
+        Its matrix elements are ``(1/2) (k+G).(k+G') v(G-G')``, those of the gradient
+        form, whenever the grid holds every difference G - G' of the sphere without
+        folding (the density grid does).
+        """
+        quarter = 0.25 * kpg2
+        if not _HAVE_PYFFTW:
+            psi = self.to_real(self._scatter(coefficients, grid_index))
+            lap = self.to_real(self._scatter(coefficients * kpg2, grid_index))
+            size = self.size
+            first = self.to_reciprocal(psi * (prepared * size) + lap * (prepared_tau * size / 4))
+            second = self.to_reciprocal(psi * (prepared_tau * size))
+            n = len(coefficients)
+            return (first.reshape(n, -1)[:, grid_index]
+                    + quarter * second.reshape(n, -1)[:, grid_index])
+        nb = coefficients.shape[0]
+        out = np.empty((nb, grid_index.size), dtype=complex)
+        second = np.empty((min(nb, self.batch), grid_index.size), dtype=complex)
+        tau4 = 0.25 * prepared_tau
+        for start in range(0, nb, self.batch):
+            stop = min(nb, start + self.batch)
+            m = stop - start
+            src, dst, bwd, fwd, flat = self._sphere_buffer(m, grid_index)
+            lap, tau_psi, bwd_lap, fwd_tau = self._meta_plans(m)
+            src.reshape(-1)[flat] = coefficients[start:stop].reshape(-1)
+            t0 = time.perf_counter()
+            bwd(normalise_idft=False)                       # dst = psi
+            self.seconds += time.perf_counter() - t0
+            src.reshape(-1)[flat] = (coefficients[start:stop] * kpg2).reshape(-1)
+            t0 = time.perf_counter()
+            bwd_lap(normalise_idft=False)                   # lap = F^-1[|k+G|^2 c]
+            self.seconds += time.perf_counter() - t0
+            np.multiply(dst, prepared_tau, out=tau_psi)
+            np.multiply(dst, prepared, out=dst)
+            np.multiply(lap, tau4, out=lap)
+            dst += lap
+            t0 = time.perf_counter()
+            fwd()
+            fwd_tau()
+            self.seconds += time.perf_counter() - t0
+            np.take(dst.reshape(-1), flat, out=out[start:stop].reshape(-1))
+            np.take(tau_psi.reshape(-1), flat, out=second[:m].reshape(-1))
+            second[:m] *= quarter
+            out[start:stop] += second[:m]
+        self.n_transforms += 4 * nb
+        return out
+
+    def _meta_plans(self, nb: int):
+        """Scratch grids and plans of :meth:`apply_prepared_meta` for ``nb`` fields:
+        ``(lap, tau_psi, backward src -> lap, forward tau_psi in place)``."""
+        plans = getattr(self, "_meta_cache", None)
+        if plans is None:
+            plans = {"lap": pyfftw.empty_aligned((self.batch, *self.shape), dtype="complex128"),
+                     "tau": pyfftw.empty_aligned((self.batch, *self.shape), dtype="complex128")}
+            self._meta_cache = plans
+        if nb not in plans:
+            src = self._shared[0]
+            lap, tau = plans["lap"][:nb], plans["tau"][:nb]
+            bwd = pyfftw.FFTW(src[:nb], lap, axes=(1, 2, 3), direction="FFTW_BACKWARD",
+                              flags=("FFTW_MEASURE",), threads=self.threads)
+            fwd = pyfftw.FFTW(tau, tau, axes=(1, 2, 3), direction="FFTW_FORWARD",
+                              flags=("FFTW_MEASURE", "FFTW_DESTROY_INPUT"), threads=self.threads)
+            # planning may scribble on the shared input buffer; zero it all (the sphere
+            # bookkeeping of _sphere_buffer stays valid: its entries are zero too)
+            src[...] = 0
+            plans[nb] = (bwd, fwd)
+        bwd, fwd = plans[nb]
+        return plans["lap"][:nb], plans["tau"][:nb], bwd, fwd
+
     def accumulate_density(self, coefficients: np.ndarray, grid_index: np.ndarray,
                            weights: np.ndarray, out: np.ndarray) -> None:
         """Add sum_b weights_b |psi_b(r)|^2 to ``out`` (shape ``shape``, float)."""

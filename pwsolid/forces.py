@@ -268,7 +268,7 @@ def _grid_forces(gs: GroundState) -> tuple[np.ndarray, np.ndarray]:
         return local, np.zeros_like(local)
     # dE_xc = int V_xc dn_c; with spin each channel holds half the core (scf._xc_on_grid)
     density = gs.density if gs.spin_densities is None else gs.spin_densities
-    v_xc = _xc_on_grid(setup, density).potential
+    v_xc = _xc_on_grid(setup, density, getattr(gs, "kinetic_density", None)).potential
     if v_xc.ndim == 4:
         v_xc = 0.5 * (v_xc[0] + v_xc[1])
     v_g = setup.fft.field_to_reciprocal(v_xc).ravel()

@@ -1,6 +1,7 @@
 """The Kohn-Sham Hamiltonian in a plane-wave basis (layer 3).
 
-H = -1/2 nabla^2 + V_eff(r) with V_eff = V_loc + V_H + V_xc local. The kinetic
+H = -1/2 nabla^2 + V_eff(r) with V_eff = V_loc + V_H + V_xc local (plus, for a
+meta-GGA, the generalised Kohn-Sham term -1/2 div(v_tau grad)). The kinetic
 part is diagonal in plane waves; the potential is applied on the FFT grid:
 psi(r) = sum_G c_G e^{iGr} -> V_eff(r) psi(r) -> back to the basis sphere, all
 bands of a block in one batched transform.
@@ -176,15 +177,32 @@ class KPointHamiltonian:
     potential: np.ndarray
     projectors: np.ndarray | None = None   # (n_proj, n_pw) complex, see pseudo.separable
     coupling: np.ndarray | None = None     # (n_proj, n_proj) float, Ha
+    tau_potential: np.ndarray | None = None   # v_tau(r) of a meta-GGA (dimensionless)
+    tau_laplacian: np.ndarray | None = None   # its Laplacian on the grid, bohr^-2
 
     @cached_property
     def _prepared_potential(self) -> np.ndarray:
+        if self.tau_potential is not None:
+            return self.fft.prepare_potential(self.potential + 0.25 * self.tau_laplacian)
         return self.fft.prepare_potential(self.potential)
 
+    @cached_property
+    def _prepared_tau(self) -> np.ndarray:
+        return self.fft.prepare_potential(self.tau_potential)
+
     def apply(self, block: np.ndarray) -> np.ndarray:
-        """H applied to rows of ``block`` (nb, n_pw) -> (nb, n_pw)."""
-        vpsi = self.fft.apply_prepared_potential(block, self.basis.grid_index,
-                                                 self._prepared_potential)
+        """H applied to rows of ``block`` (nb, n_pw) -> (nb, n_pw).
+
+        With a meta-GGA's ``tau_potential`` the generalised Kohn-Sham term
+        ``-1/2 div(v_tau grad psi)`` is added (:meth:`pwsolid.fft.FFTGrid.apply_prepared_meta`).
+        """
+        if self.tau_potential is not None:
+            vpsi = self.fft.apply_prepared_meta(block, self.basis.grid_index,
+                                                self._prepared_potential, self._prepared_tau,
+                                                2.0 * self.basis.kinetic)
+        else:
+            vpsi = self.fft.apply_prepared_potential(block, self.basis.grid_index,
+                                                     self._prepared_potential)
         vpsi += self.basis.kinetic[None, :] * block
         if self.projectors is not None and len(self.projectors):
             # all atoms and bands at once: two BLAS-3 products
@@ -199,6 +217,11 @@ class KPointHamiltonian:
         dm = (self.basis.miller[:, None, :] - self.basis.miller[None, :, :]) % shape
         h = v_g[dm[..., 0], dm[..., 1], dm[..., 2]]
         h[np.diag_indices_from(h)] += self.basis.kinetic
+        if self.tau_potential is not None:
+            # (1/2) (k+G).(k+G') v_tau(G - G'): the gradient form of -1/2 div(v_tau grad)
+            vt = self.fft.field_to_reciprocal(self.tau_potential)
+            h += 0.5 * (self.basis.kpg @ self.basis.kpg.T) * vt[dm[..., 0], dm[..., 1],
+                                                                 dm[..., 2]]
         if self.projectors is not None and len(self.projectors):
             h += self.projectors.T @ self.coupling @ self.projectors.conj()
         return h

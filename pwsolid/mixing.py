@@ -14,7 +14,8 @@ from typing import Callable
 
 import numpy as np
 
-__all__ = ["PulayMixer", "LinearMixer", "kerker_preconditioner", "thomas_fermi_wavevector"]
+__all__ = ["PulayMixer", "LinearMixer", "kerker_preconditioner", "thomas_fermi_wavevector",
+           "model_dielectric_function", "model_dielectric_preconditioner"]
 
 
 def thomas_fermi_wavevector(mean_density: float) -> float:
@@ -83,8 +84,93 @@ def kerker_preconditioner(g2: np.ndarray, screening_wavevector: float) -> Callab
         raise ValueError(f"the screening wave vector must be positive (got {screening_wavevector!r})")
     factor = g2 / (g2 + q0 * q0)
     factor[0, 0, 0] = 0.0
-    shape = g2.shape
-    size = g2.size
+    return _reciprocal_filter(factor)
+
+
+def _screening_radius(dielectric_constant: float, q0: float) -> float:
+    """R_s (bohr) with sinh(q0 R_s) / (q0 R_s) = eps0, by bisection on x = q0 R_s."""
+    lo, hi = 1e-12, 1.0
+    while math.sinh(hi) / hi < dielectric_constant:
+        hi *= 2.0
+    for _ in range(200):
+        mid = 0.5 * (lo + hi)
+        if math.sinh(mid) / mid < dielectric_constant:
+            lo = mid
+        else:
+            hi = mid
+    return 0.5 * (lo + hi) / q0
+
+
+def model_dielectric_function(q: np.ndarray, dielectric_constant: float,
+                              screening_wavevector: float) -> np.ndarray:
+    """Resta's model dielectric function of a semiconductor, eps(q) (dimensionless).
+
+    Parameters
+    ----------
+    q : array, 1/bohr (q >= 0)
+    dielectric_constant : float
+        eps0 > 1, the static electronic dielectric constant (silicon: about 12).
+    screening_wavevector : float, 1/bohr
+        q0 > 0, the Thomas-Fermi wave vector of the valence electrons
+        (:func:`thomas_fermi_wavevector`).
+
+    Notes
+    -----
+    With the screening radius R_s fixed by sinh(q0 R_s) / (q0 R_s) = eps0,
+
+        eps(q) = (q0^2 + q^2) / (q0^2 sin(q R_s) / (eps0 q R_s) + q^2)   for q R_s < pi,
+        eps(q) = 1 + q0^2 / q^2                                            beyond,
+
+    which tends to eps0 at q -> 0 and joins the Thomas-Fermi form continuously at
+    q R_s = pi, where the sine vanishes: the valence charge screens like a free-electron
+    gas within R_s of a test charge and not at all beyond.
+
+    References
+    ----------
+    R. Resta, Phys. Rev. B 16, 2717 (1977) (from memory).
+    """
+    eps0, q0 = float(dielectric_constant), float(screening_wavevector)
+    if not (math.isfinite(eps0) and eps0 > 1.0):
+        raise ValueError(f"the dielectric constant must exceed 1 (got {dielectric_constant!r})")
+    if not (math.isfinite(q0) and q0 > 0.0):
+        raise ValueError(f"the screening wave vector must be positive (got {screening_wavevector!r})")
+    r_s = _screening_radius(eps0, q0)
+    q = np.asarray(q, float)
+    x = q * r_s
+    inside = x < math.pi
+    # sin(x)/x = np.sinc(x / pi); at q = 0 the ratio is eps0 exactly
+    screened = q0 * q0 * np.sinc(x / math.pi) / eps0
+    thomas_fermi = 1.0 + q0 * q0 / np.where(q > 0, q * q, 1.0)
+    return np.where(inside, (q0 * q0 + q * q) / (screened + q * q), thomas_fermi)
+
+
+def model_dielectric_preconditioner(g2: np.ndarray, dielectric_constant: float,
+                                    screening_wavevector: float) -> Callable[[np.ndarray], np.ndarray]:
+    """Density residuals divided by Resta's model dielectric function, 1/eps(|G|).
+
+    The same calling convention as :func:`kerker_preconditioner` (flat real residuals
+    on the grid of ``g2``). For an insulator the Kerker factor G^2 / (G^2 + q0^2) = 1 /
+    eps_TF(G) tends to 0 at small G, where the true response tends to 1 / eps0: the
+    model keeps that long-wavelength response, so one mixing step with weight 1 removes
+    most of the linear part of the residual. G = 0 is zeroed (the charge is kept).
+
+    References
+    ----------
+    R. Resta, Phys. Rev. B 16, 2717 (1977) (the model); G. P. Kerker, Phys. Rev. B 23,
+    3082 (1981) (preconditioning by a model dielectric function).
+    """
+    g2 = np.asarray(g2, float)
+    if g2.ndim != 3:
+        raise ValueError(f"g2 must be a 3-d grid, got shape {g2.shape}")
+    factor = 1.0 / model_dielectric_function(np.sqrt(g2), dielectric_constant,
+                                             screening_wavevector)
+    factor[0, 0, 0] = 0.0
+    return _reciprocal_filter(factor)
+
+
+def _reciprocal_filter(factor: np.ndarray) -> Callable[[np.ndarray], np.ndarray]:
+    """``P(r)``: a flat (or grid-shaped) real residual times ``factor`` in reciprocal space."""
+    shape, size = factor.shape, factor.size
 
     def precondition(residual: np.ndarray) -> np.ndarray:
         r = np.asarray(residual, float)

@@ -28,7 +28,8 @@ from .errors import ConvergenceError, ConvergenceWarning, InputError
 from .fft import FFTGrid, make_fft_grid
 from .hamiltonian import KPointHamiltonian, core_density, kinetic_preconditioner, local_potential
 from .kpoints import KPointSet, join_by_full_symmetry
-from .mixing import PulayMixer, kerker_preconditioner, thomas_fermi_wavevector
+from .mixing import (PulayMixer, kerker_preconditioner, model_dielectric_preconditioner,
+                     thomas_fermi_wavevector)
 from .parallel import (SerialCommunicator, distribute, fft_threads_for, single_threaded_blas,
                        world)
 from .occupations import (TOP_BAND_CHARGE_LIMIT, BandEdges, SmearingResult, aufbau_occupations,
@@ -178,16 +179,21 @@ class SCFState:
     applications: int = 0               # single-vector H applications so far
     history: list = field(default_factory=list)
     warm: bool = False                  # started from a neighbouring cell's density
+    kinetic_density: np.ndarray | None = None         # meta-GGAs: input tau (mixed like n)
+    output_kinetic_density: np.ndarray | None = None  # meta-GGAs: tau of the new orbitals
 
 
-def effective_potential(setup: SystemSetup, density: np.ndarray) -> np.ndarray:
-    """V_eff(r) = V_loc + V_H[n] + V_xc[n] on the FFT grid (Ha), for a density on the grid."""
-    return _effective_potential(setup, np.asarray(density, float))
+def effective_potential(setup: SystemSetup, density: np.ndarray,
+                        kinetic_density: np.ndarray | None = None) -> np.ndarray:
+    """V_eff(r) = V_loc + V_H[n] + V_xc[n] on the FFT grid (Ha), for a density on the grid
+    (and, for a meta-GGA, its kinetic-energy density)."""
+    return _effective_potential(setup, np.asarray(density, float), kinetic_density)
 
 
 def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional,
                      n_bands: int, *, tolerance: float = 1e-6,
-                     progress: Callable[[int, int], None] | None = None) -> np.ndarray:
+                     progress: Callable[[int, int], None] | None = None,
+                     kinetic_density: np.ndarray | None = None) -> np.ndarray:
     """Non-self-consistent eigenvalues (Ha) at arbitrary k-points for a fixed density.
 
     Parameters
@@ -202,6 +208,9 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
         Bands per k-point.
     progress
         Called as ``progress(done, total)`` after each k-point.
+    kinetic_density
+        For a meta-GGA: the kinetic-energy density stored with the density (same
+        shape); its v_tau enters every Hamiltonian.
 
     Returns
     -------
@@ -216,7 +225,8 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
     s = setup.settings
     k_list = np.atleast_2d(np.asarray(kpoints_fractional, float))
     with single_threaded_blas():
-        v_eff = _effective_potential(setup, np.asarray(density, float))
+        density = np.asarray(density, float)
+        v_eff, v_tau = _potentials(setup, density, _stored_tau(setup, density, kinetic_density))
         v_eff_g = setup.fft.field_to_reciprocal(v_eff)
 
         def solve(k):
@@ -226,7 +236,8 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
                                  "of this cutoff", key="basis.cutoff", value=s.cutoff)
             proj, coupling = _nonlocal(setup.crystal, setup.pseudopotentials, basis)
             guess = _initial_guess(basis, v_eff_g, n_bands, setup.grid_shape, proj, coupling)
-            ham = KPointHamiltonian(basis, setup.fft, v_eff, proj, coupling)
+            ham = KPointHamiltonian(basis, setup.fft, v_eff, proj, coupling,
+                                    *_tau_fields(v_tau, 0))
             return davidson(ham.apply, kinetic_preconditioner(basis.kinetic), guess,
                             tolerance=tolerance, max_iterations=200).eigenvalues
 
@@ -243,22 +254,85 @@ def bands_at_kpoints(setup: SystemSetup, density: np.ndarray, kpoints_fractional
     return np.array(eigenvalues, dtype=float).reshape(len(k_list), n_bands)
 
 
-def _effective_potential(setup: SystemSetup, density: np.ndarray):
+def _effective_potential(setup: SystemSetup, density: np.ndarray, kinetic_density=None):
     """V_eff on the grid: shape (*grid) unpolarised, (2, *grid) for densities (up, down)."""
+    return _potentials(setup, density, kinetic_density)[0]
+
+
+def _potentials(setup: SystemSetup, density: np.ndarray, kinetic_density=None):
+    """(V_eff, meta-GGA fields or None): the fields are (v_tau, its Laplacian), each of
+    the density's shape."""
     total = density if density.ndim == 3 else density.sum(axis=0)
     n_g = setup.fft.field_to_reciprocal(total)
     v_h = setup.fft.field_to_real(hartree_potential(n_g, setup.g2)).real
-    v_xc = _xc_on_grid(setup, density).potential
-    return setup.v_loc_r + v_h + v_xc
+    xc = _xc_on_grid(setup, density, kinetic_density)
+    v_eff = setup.v_loc_r + v_h + xc.potential
+    if xc.tau_potential is None:
+        return v_eff, None
+    return v_eff, (xc.tau_potential, _laplacian(setup, xc.tau_potential))
 
 
-def _xc_on_grid(setup: SystemSetup, density: np.ndarray):
-    """E_xc and V_xc of the valence density plus the model core density (if any)."""
+def _laplacian(setup: SystemSetup, field_: np.ndarray) -> np.ndarray:
+    """Spectral Laplacian of one field or a stack of (up, down) fields."""
+    stack = field_ if field_.ndim == 4 else field_[None]
+    out = setup.fft.to_real(-setup.g2[None] * setup.fft.to_reciprocal(
+        stack.astype(complex))).real
+    return out if field_.ndim == 4 else out[0]
+
+
+def _tau_fields(fields, spin: int) -> tuple:
+    """(v_tau, its Laplacian) of one spin channel, or (None, None) without a meta-GGA."""
+    if fields is None:
+        return None, None
+    v_tau, lap = fields
+    return (v_tau, lap) if v_tau.ndim == 3 else (v_tau[spin], lap[spin])
+
+
+def needs_kinetic_density(setup: SystemSetup) -> bool:
+    """Whether the set-up's functional is a meta-GGA (needs tau)."""
+    return bool(getattr(setup.functional, "needs_kinetic_density", False))
+
+
+def _stored_tau(setup: SystemSetup, density: np.ndarray, kinetic_density):
+    """The kinetic-energy density for a non-self-consistent run (meta-GGAs only)."""
+    if not needs_kinetic_density(setup):
+        return None
+    if kinetic_density is None:
+        raise InputError(f"the meta-GGA '{setup.functional.name}' needs the kinetic-energy "
+                         "density stored with the density: recompute the ground state (its "
+                         "density file then holds both)", key="exchange_correlation.functional",
+                         value=setup.functional.name)
+    tau = np.asarray(kinetic_density, float)
+    if tau.shape != density.shape:
+        # a spin-polarised tau with a total density: the total
+        tau = tau.sum(axis=0) if tau.ndim == 4 and density.ndim == 3 else tau
+    if tau.shape != density.shape:
+        raise InputError("the stored kinetic-energy density does not match the density's grid",
+                         key="kinetic_density", value=list(tau.shape))
+    return tau
+
+
+def uniform_gas_kinetic_density(density: np.ndarray) -> np.ndarray:
+    """tau of a uniform gas of the local (spin) density(ies), a meta-GGA's first guess."""
+    from .xc.meta_functional import spin_uniform_kinetic_density
+
+    if density.ndim == 3:
+        return 2.0 * spin_uniform_kinetic_density(0.5 * density)
+    return spin_uniform_kinetic_density(density)
+
+
+def _xc_on_grid(setup: SystemSetup, density: np.ndarray, kinetic_density=None,
+                energy_only: bool = False):
+    """E_xc and V_xc of the valence density plus the model core density (if any).
+
+    A meta-GGA gets the valence kinetic-energy density only (the model core has
+    no orbitals)."""
     if setup.core_density is not None:
         # the core is unpolarised: half of it in each spin channel
         density = density + (setup.core_density if density.ndim == 3
                              else 0.5 * setup.core_density[None])
-    return exchange_correlation_on_grid(setup.functional, density, setup.fft, setup.g_vectors)
+    return exchange_correlation_on_grid(setup.functional, density, setup.fft, setup.g_vectors,
+                                        kinetic_density, energy_only=energy_only)
 
 
 def _channel_potential(v_eff: np.ndarray, spin: int) -> np.ndarray:
@@ -335,7 +409,10 @@ def _davidson_steps(residual: float) -> int:
 def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
     """One SCF iteration: potential from n_in, eigenstates, occupations, n_out and energy."""
     state.iteration += 1
-    v_eff = _effective_potential(setup, state.density)
+    meta = needs_kinetic_density(setup)
+    if meta and state.kinetic_density is None:
+        state.kinetic_density = uniform_gas_kinetic_density(state.density)
+    v_eff, v_tau = _potentials(setup, state.density, state.kinetic_density)
     tol = _eigensolver_tolerance(state.residual, state.iteration, state.warm)
     nb = setup.n_bands
     if state.wavefunctions is None:
@@ -355,10 +432,12 @@ def scf_step(setup: SystemSetup, state: SCFState) -> SCFState:
     # empty ones at the end cost more SCF iterations than it saved (measured on silicon).
     first = fresh or (state.warm and state.iteration == 1)
     steps = 30 if first else _davidson_steps(state.residual)
-    eigs, applications = _solve_bands(setup, state, v_eff, tol, steps, nb)
+    eigs, applications = _solve_bands(setup, state, v_eff, tol, steps, nb, v_tau)
     smear, occ = _occupations(setup, eigs)
     n_out = _density(setup, state.wavefunctions, occ)
-    energy = _energy(setup, state.wavefunctions, occ, n_out)
+    tau_out = kinetic_energy_density(setup, state.wavefunctions, occ) if meta else None
+    state.output_kinetic_density = tau_out
+    energy = _energy(setup, state.wavefunctions, occ, n_out, tau_out)
     residual = float(np.abs(n_out - state.density).sum() / setup.grid_size
                      * setup.volume / setup.n_electrons)
     # With smearing the variational quantity is the free energy F = E - sigma S.
@@ -432,18 +511,37 @@ def _occupations(setup: SystemSetup, eigenvalues: np.ndarray):
 
 def _mixer(setup: SystemSetup) -> PulayMixer:
     s = setup.settings
-    use_kerker = (s.mixing_preconditioner == "kerker"
-                  or (s.mixing_preconditioner == "auto" and s.smearing != "none"))
+    choice = s.mixing_preconditioner
+    if choice == "auto":
+        choice = ("kerker" if s.smearing != "none"
+                  else "model-dielectric" if setup.n_spin == 1 else "none")
     pre = None
-    if use_kerker:
+    if choice in ("kerker", "model-dielectric"):
         q0 = s.screening_wavevector or thomas_fermi_wavevector(setup.n_electrons / setup.volume)
-        pre = _per_channel(kerker_preconditioner(setup.g2, q0), setup.n_spin)
-    return PulayMixer(s.mixing_weight, s.mixing_history, preconditioner=pre)
+        pre = _per_channel(kerker_preconditioner(setup.g2, q0) if choice == "kerker" else
+                           model_dielectric_preconditioner(setup.g2, s.dielectric_constant, q0),
+                           setup.n_spin, needs_kinetic_density(setup))
+    weight = s.mixing_weight
+    if weight is None:
+        # measured on the displaced 8-atom silicon relaxation (benchmarks/relaxation_steps.py):
+        # mean SCF iterations of the warm steps 3.25 at 0.6, 2.75 at 1; cold steps 8.9 and 7.1
+        weight = 1.0 if choice == "model-dielectric" else 0.6
+    return PulayMixer(weight, s.mixing_history, preconditioner=pre)
 
 
-def _per_channel(precondition, n_spin: int):
+def _per_channel(precondition, n_spin: int, meta: bool = False):
     """Extend a one-grid preconditioner to (up, down) residuals: it filters the total
-    density only; the magnetization passes unchanged, so the moment can still relax."""
+    density only; the magnetization passes unchanged, so the moment can still relax.
+    With ``meta`` the vector's second half is a meta-GGA's tau, passed unchanged (the
+    Kerker filter removes a residual's mean, which tau's must keep; filtering tau alike
+    stalled a spin-polarised r2SCAN silicon run that converges in 34 iterations so)."""
+    if meta:
+        inner = _per_channel(precondition, n_spin)
+
+        def apply_meta(vector):
+            density, tau = np.split(np.asarray(vector), 2)
+            return np.concatenate([np.ravel(inner(density)), tau])
+        return apply_meta
     if n_spin == 1:
         return precondition
 
@@ -455,7 +553,7 @@ def _per_channel(precondition, n_spin: int):
 
 
 def _solve_bands(setup: SystemSetup, state: SCFState, v_eff: np.ndarray, tol: float,
-                 max_iterations: int, n_converge: int) -> tuple[np.ndarray, int]:
+                 max_iterations: int, n_converge: int, v_tau=None) -> tuple[np.ndarray, int]:
     """Davidson at every owned k-point, warm-started from ``state.wavefunctions``;
     the lowest ``n_converge`` bands must meet ``tol``."""
     from .parallel import (apply_by_plane_waves, band_group, collect_columns, plane_wave_slice,
@@ -476,7 +574,7 @@ def _solve_bands(setup: SystemSetup, state: SCFState, v_eff: np.ndarray, tol: fl
         spin, ik = setup.channel(j)
         basis = setup.bases[ik]
         ham = KPointHamiltonian(basis, setup.fft, _channel_potential(v_eff, spin),
-                                *setup.nonlocal_ops[ik])
+                                *setup.nonlocal_ops[ik], *_tau_fields(v_tau, spin))
         mine = plane_wave_slice(group, basis.size)
         result = davidson(apply_by_plane_waves(group, basis.size, ham.apply),
                           kinetic_preconditioner(basis.kinetic[mine], total=total),
@@ -508,11 +606,36 @@ def _density(setup: SystemSetup, wavefunctions, occupations) -> np.ndarray:
     return n[0] if setup.n_spin == 1 else n
 
 
-def _energy(setup: SystemSetup, wavefunctions, occupations, density) -> EnergyTerms:
+def kinetic_energy_density(setup: SystemSetup, wavefunctions, occupations) -> np.ndarray:
+    """tau(r) = 1/2 sum_nk w_k f_nk |grad psi_nk(r)|^2 on the grid (Ha bohr^-3), per spin.
+
+    Each Cartesian component of the gradient is one batched transform of the
+    coefficients times (k+G)_a (:meth:`pwsolid.fft.FFTGrid.accumulate_density`);
+    symmetrised like the density. Shape (*grid), or (2, *grid) spin-polarised.
+    """
+    tau = np.zeros((setup.n_spin, *setup.grid_shape))
+    weights = setup.channel_weights
+    for j in setup.owned:
+        spin, ik = setup.channel(j)
+        basis = setup.bases[ik]
+        f = occupations[j]
+        sel = np.abs(f) > 1e-14
+        block = wavefunctions[j][sel]
+        for a in range(3):
+            setup.fft.accumulate_density(block * basis.kpg[:, a], basis.grid_index,
+                                         0.5 * weights[j] * f[sel], tau[spin])
+    tau = setup.comm.allreduce_sum(tau) / setup.volume
+    if setup.symmetrize is not None:
+        tau = np.stack([setup.symmetrize(x) for x in tau])
+    return tau[0] if setup.n_spin == 1 else tau
+
+
+def _energy(setup: SystemSetup, wavefunctions, occupations, density,
+            kinetic_density=None) -> EnergyTerms:
     total = density if density.ndim == 3 else density.sum(axis=0)
     n_g = setup.fft.field_to_reciprocal(total)
     e_loc, e_g0 = local_energy(setup.v_loc_g, n_g, setup.volume)
-    e_xc = _xc_on_grid(setup, density).energy(setup.volume)
+    e_xc = _xc_on_grid(setup, density, kinetic_density, energy_only=True).energy(setup.volume)
     own = list(setup.owned)
     ks = [setup.channel(j)[1] for j in own]
     mine = [wavefunctions[j] for j in own]
@@ -555,6 +678,7 @@ class GroundState:
     blas_seconds: float
     messages: tuple[str, ...] = ()
     spin_densities: np.ndarray | None = None   # (2, *grid) up and down, spin-polarised runs
+    kinetic_density: np.ndarray | None = None  # meta-GGAs: tau of the final orbitals, like n
 
     @property
     def magnetization(self) -> float | None:
@@ -703,7 +827,7 @@ def _remedy(setup: SystemSetup, mixer: PulayMixer, step: int):
         q0 = s.screening_wavevector or thomas_fermi_wavevector(setup.n_electrons / setup.volume)
         new = PulayMixer(mixer.weight / 2, min(2 * s.mixing_history, 40),
                          preconditioner=_per_channel(kerker_preconditioner(setup.g2, q0),
-                                                     setup.n_spin))
+                                                     setup.n_spin, needs_kinetic_density(setup)))
         return (setup, new,
                 f"mixing weight {mixer.weight:g} -> {new.weight:g} with Kerker preconditioning")
     if step == 2:
@@ -715,6 +839,22 @@ def _remedy(setup: SystemSetup, mixer: PulayMixer, step: int):
         return (dataclasses.replace(setup, n_bands=n_new), mixer,
                 f"bands {setup.n_bands} -> {n_new}")
     return None
+
+
+def _mix(state: SCFState, mixer: PulayMixer) -> None:
+    """Next input density (and, for a meta-GGA, kinetic-energy density) by Pulay mixing;
+    n and tau are one vector, so the extrapolation keeps them consistent."""
+    shape = state.density.shape
+    if state.output_kinetic_density is None:
+        state.density = mixer.mix(state.density.ravel(),
+                                  state.output_density.ravel()).reshape(shape)
+        return
+    size = state.density.size
+    mixed = mixer.mix(np.concatenate([state.density.ravel(), state.kinetic_density.ravel()]),
+                      np.concatenate([state.output_density.ravel(),
+                                      state.output_kinetic_density.ravel()]))
+    state.density = mixed[:size].reshape(shape)
+    state.kinetic_density = mixed[size:].reshape(shape)
 
 
 def _spin_start(setup: SystemSetup, density: np.ndarray) -> np.ndarray:
@@ -736,6 +876,7 @@ def _resume(setup: SystemSetup, state: SCFState, mixer: PulayMixer, path,
     record = load_checkpoint(path, setup, accept_mismatch=accept_mismatch)
     arrays, meta = record.arrays, record.metadata
     state.density = arrays["density"]
+    state.kinetic_density = arrays.get("kinetic_density")
     state.iteration = int(meta["iteration"])
     state.applications = int(meta.get("applications", 0))
     state.history = list(meta.get("history", []))
@@ -811,8 +952,7 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
                 note = f"SCF stalled at iteration {state.iteration}; remedy {remedies}: {what}"
                 messages.append(note)
                 emit(note)
-        shape = state.density.shape
-        state.density = mixer.mix(state.density.ravel(), state.output_density.ravel()).reshape(shape)
+        _mix(state, mixer)
         if checkpoint is not None and setup.comm.rank == 0 and state.iteration % checkpoint_every == 0:
             save_checkpoint(checkpoint, setup, state, mixer)
     if not converged:
@@ -844,6 +984,7 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
         eigenvalues=state.eigenvalues, occupations=state.occupations,
         density=(state.output_density if setup.n_spin == 1 else state.output_density.sum(axis=0)),
         spin_densities=None if setup.n_spin == 1 else state.output_density,
+        kinetic_density=state.output_kinetic_density,
         wavefunctions=state.wavefunctions, history=state.history,
         band_edges=edges, smearing=state.smearing, hamiltonian_applications=state.applications,
         wall_seconds=time.perf_counter() - t_start, fft_seconds=setup.fft.seconds,

@@ -242,6 +242,7 @@ PATH_ONLY_SETTINGS: dict[str, str] = {
     "mixing_history": "the path of the iterations",
     "mixing_preconditioner": "the path of the iterations",
     "screening_wavevector": "the path of the iterations",
+    "dielectric_constant": "the path of the iterations",
     "empty_bands": "bands computed beyond the occupied ones (a run may add some)",
 }
 
@@ -587,6 +588,8 @@ def save_checkpoint(path, setup, state, mixer) -> None:
     inputs, residuals = mixer.history_arrays()
     arrays = {"density": np.asarray(state.density, float), "mixer_inputs": inputs,
               "mixer_residuals": residuals}
+    if getattr(state, "kinetic_density", None) is not None:      # meta-GGAs
+        arrays["kinetic_density"] = np.asarray(state.kinetic_density, float)
     if setup.comm.size == 1 and state.wavefunctions is not None:
         for ik, c in enumerate(state.wavefunctions):
             arrays[f"wavefunctions_{ik}"] = c
@@ -620,6 +623,8 @@ def save_density(path, gs, *, accepted_mismatches=()) -> None:
     arrays = {"density": np.asarray(gs.density, float)}
     if getattr(gs, "spin_densities", None) is not None:
         arrays["spin_densities"] = np.asarray(gs.spin_densities, float)
+    if getattr(gs, "kinetic_density", None) is not None:         # meta-GGAs: tau too
+        arrays["kinetic_density"] = np.asarray(gs.kinetic_density, float)
     save_record(path, "density", setup_fingerprint(gs.setup), arrays,
                 {"n_electrons": float(gs.setup.n_electrons)},
                 accepted_mismatches=accepted_mismatches)
@@ -628,7 +633,8 @@ def save_density(path, gs, *, accepted_mismatches=()) -> None:
 def load_density(path, setup=None, *, accept_mismatch: bool = False) -> dict:
     """Read a density file; with ``setup``, check that it belongs to that calculation.
 
-    Returns a dict with ``density`` (and ``spin_densities`` when saved),
+    Returns a dict with ``density`` (and ``spin_densities`` and, for a meta-GGA,
+    ``kinetic_density`` when saved),
     ``species``, ``functional``, ``fingerprint`` (the stored values) and
     ``mismatches`` (accepted differences; empty unless ``accept_mismatch``).
     A density on another grid is refused even when a mismatch is accepted.

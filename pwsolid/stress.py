@@ -22,7 +22,8 @@ The parts (each (3, 3), Ha/bohr^3; they add up to the tensor):
 * ``g0``: -E_G0 delta/Omega (E_G0 = N_el/Omega sum_atoms w(0));
 * ``nonlocal``: -E_nl delta/Omega - (2/Omega) sum w f Re <psi|p> h <(k+G)_a d_b p|psi>;
 * ``exchange_correlation``: (E_xc - int v_xc (n + n_c)) delta/Omega + the gradient term
-  of :func:`pwsolid.xc_grid.gradient_stress`;
+  of :func:`pwsolid.xc_grid.gradient_stress`; a meta-GGA adds -int v_tau tau delta/Omega
+  - (1/Omega) int v_tau sum w f Re(d_a psi* d_b psi) (tau's own strain dependence);
 * ``partial_core``: -sum_G Re[v_xc*(G) dn_c(G)] G_a G_b / |G| (the core moves with the
   atoms);
 * ``ewald``: :func:`pwsolid.electrostatics.ewald_stress`.
@@ -346,11 +347,18 @@ def _xc_parts(gs) -> tuple[np.ndarray, np.ndarray]:
     if core is not None:
         # the core is unpolarised: half of it in each spin channel (as the SCF does)
         density = density + (core if density.ndim == 3 else 0.5 * core[None])
-    xc = exchange_correlation_on_grid(setup.functional, density, setup.fft, setup.g_vectors)
+    tau = getattr(gs, "kinetic_density", None)
+    xc = exchange_correlation_on_grid(setup.functional, density, setup.fft, setup.g_vectors,
+                                      tau)
     e_xc = xc.energy(volume)
     v_times_n = float(np.mean(np.sum(xc.potential * density, axis=0) if density.ndim == 4
                               else xc.potential * density)) * volume
     diagonal = (e_xc - v_times_n) / volume * np.eye(3)
+    if xc.tau_potential is not None:
+        # meta-GGA: d tau / d eps_ab = -tau delta_ab - sum w f Re(d_a psi* d_b psi)
+        v_times_tau = float(np.mean(xc.tau_potential * tau)) * volume * (
+            2 if tau.ndim == 4 else 1)
+        diagonal = diagonal - v_times_tau / volume * np.eye(3) + _tau_stress(gs, xc.tau_potential)
     partial = np.zeros((3, 3))
     if core is not None:
         crystal = setup.crystal
@@ -361,6 +369,36 @@ def _xc_parts(gs) -> tuple[np.ndarray, np.ndarray]:
         v = xc.potential if density.ndim == 3 else xc.potential.mean(axis=0)
         partial = radial_form_stress(setup.fft.field_to_reciprocal(v), slope, setup.g_vectors)
     return diagonal + gradient_stress(xc), partial
+
+
+def _tau_stress(gs, v_tau: np.ndarray) -> np.ndarray:
+    """-(1/Omega) int v_tau sum w f Re(d_a psi* d_b psi) d^3r (3, 3): the orbital part of a
+    meta-GGA's exchange-correlation stress (k-symmetrised like the band parts)."""
+    setup = gs.setup
+    fft = setup.fft
+    weights = setup.channel_weights
+    total = np.zeros((3, 3))
+    for j in setup.owned:
+        spin, ik = setup.channel(j)
+        basis = setup.bases[ik]
+        c = gs.wavefunctions[j]
+        f = gs.occupations[j][:c.shape[0]]
+        sel = np.abs(f) > 1e-14
+        c, f = c[sel], f[sel]
+        v = (v_tau if v_tau.ndim == 3 else v_tau[spin]).reshape(-1)
+        for start in range(0, len(c), fft.batch):
+            block = c[start:start + fft.batch]
+            grads = np.stack([fft.to_real(fft._scatter(block * basis.kpg[:, a],
+                                                       basis.grid_index)).reshape(len(block), -1)
+                              for a in range(3)])                       # (3, nb, N)
+            weighted = grads * (f[start:start + fft.batch, None] * v[None])[None]
+            total += weights[j] * np.einsum("anr,bnr->ab", grads.conj(), weighted).real / v.size
+    total = setup.comm.allreduce_sum(total)
+    ops = setup.kpoints.operations
+    if ops is not None and ops.n_ops > 1:
+        total = symmetrize_tensor(total, cartesian_rotations(setup.crystal.lattice,
+                                                             ops.rotations))
+    return -total / setup.volume
 
 
 def pulay_stress_estimate(gs, relative_step: float = 0.1) -> np.ndarray:

@@ -21,6 +21,7 @@ __all__ = [
     "HARTREE_EV",
     "BOHR_ANGSTROM",
     "HA_PER_BOHR3_GPA",
+    "HA_PER_BOHR2_ERG_PER_CM2",
     "KELVIN_HA",
     "SPEED_OF_LIGHT",
     "ENERGY_UNITS",
@@ -39,6 +40,9 @@ BOHR_ANGSTROM: float = _c.physical_constants["Bohr radius"][0] * 1e10
 #: 1 Ha/bohr^3 in GPa.
 HA_PER_BOHR3_GPA: float = (_c.physical_constants["Hartree energy"][0]
                            / _c.physical_constants["Bohr radius"][0] ** 3 / 1e9)
+#: 1 Ha/bohr^2 (a surface energy) in erg/cm^2 (about 1.5569e6).
+HA_PER_BOHR2_ERG_PER_CM2: float = (_c.physical_constants["Hartree energy"][0] * 1e7
+                                   / (_c.physical_constants["Bohr radius"][0] * 100) ** 2)
 #: Boltzmann constant times 1 K, in hartree.
 KELVIN_HA: float = _c.k / _c.physical_constants["Hartree energy"][0]
 #: Speed of light in atomic units, 1/alpha (about 137.036).
@@ -148,3 +152,14 @@ def to_ev(energy_ha):
 def to_angstrom(length_bohr):
     """Convert bohr to angstrom (works on arrays)."""
     return length_bohr * BOHR_ANGSTROM
+
+
+# --- lattice vibrations (appended for the phonon workflow) --------------------------
+#: One dalton (unified atomic mass unit) in electron masses.
+AMU_ELECTRON_MASSES: float = _c.physical_constants["atomic mass constant"][0] / _c.m_e
+#: An angular frequency of 1 Ha/hbar as an ordinary frequency in THz (E_h / h / 1e12).
+HARTREE_THZ: float = _c.physical_constants["hartree-hertz relationship"][0] * 1e-12
+#: One THz in wavenumbers, cm^-1 (1e12 / c / 100).
+THZ_INVERSE_CM: float = 1e12 / _c.c / 100.0
+#: One THz as an energy in meV (h * 1e12 / e * 1e3).
+THZ_MEV: float = _c.h * 1e12 / _c.e * 1e3

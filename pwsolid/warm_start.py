@@ -314,15 +314,17 @@ def starting_point(warm: WarmStart | None, grid_shape, volume: float, crystal=No
     old = warm.crystal
     if (crystal is not None and atomic_forms is not None and old is not None
             and list(old.species) == list(crystal.species)):
+        earlier = []
         before = warm.earlier
-        if before is not None and (before.crystal is None
-                                   or list(before.crystal.species) != list(crystal.species)):
-            before = None
+        while before is not None and len(earlier) < EARLIER_STRUCTURES:
+            if before.crystal is None or list(before.crystal.species) != list(crystal.species):
+                break
+            earlier.append((transfer_density(before.density, before.volume, grid_shape, volume),
+                            before.crystal.positions))
+            before = before.earlier
         density = moved_atoms_density(
             density, crystal.lattice, old.positions, crystal.positions, crystal.species,
-            atomic_forms, earlier=None if before is None else (
-                transfer_density(before.density, before.volume, grid_shape, volume),
-                before.crystal.positions))
+            atomic_forms, earlier=earlier or None)
     waves = _extrapolated_orbitals(warm, volume)
     if expected is not None:
         expected *= _START_RESIDUAL_PER_ESTIMATE
@@ -410,42 +412,54 @@ def moved_atoms_density(density: np.ndarray, lattice: np.ndarray, old_positions:
     old_positions, new_positions : (n_atoms, 3) fractional
     species : sequence of str
     forms : mapping species -> ``form_factor(q)`` of its atomic density
-    earlier : (density, positions) or None
-        The self-consistent density (same grid and cell) and fractional positions of
-        the structure before ``old_positions``: the bonding part is then extrapolated
-        too, with the alpha that best continues the last move of the atoms.
+    earlier : (density, positions), a sequence of such pairs, or None
+        Self-consistent densities (same grid and cell) and fractional positions of
+        structures visited before ``old_positions``, the most recent first: the bonding
+        part is then extrapolated too, with the coefficients that best continue the
+        atoms' path (see Notes).
 
     Returns
     -------
     ndarray, the shape of ``density``, float64
         n + N[R_new] - N[R_old], N the superposition of atomic densities
-        (:func:`pwsolid.hamiltonian.superposed_density`); spin channels take half
-        the change each. Negative values are clipped and the charge restored.
+        (:func:`pwsolid.hamiltonian.superposed_density`), plus the extrapolated change
+        of the bonding density; spin channels take half the change each. Negative
+        values are clipped and the charge restored.
 
     Notes
     -----
     The first-order density extrapolation for moving atoms: the part of the density
     that the atoms carry rigidly follows them, the bonding rearrangement
-    b = n - N[R_old] is kept. With an earlier structure,
-    b_new = b + alpha (b - b_earlier), alpha = <dR, dR_1> / <dR_1, dR_1> minimising
-    |dR - alpha dR_1| for the new move dR = R_new - R_old and the last one
-    dR_1 = R_old - R_earlier (Cartesian, nearest image); alpha is kept within [0, 1]
-    (spin densities use the first-order form).
+    b = n - N[R_old] is kept. With earlier structures R_1, R_2, ... (bonding densities
+    b_i), the new move is fitted by the earlier ones,
+    R_new - R_old ~ sum_i c_i (R_old - R_i) (least squares, Cartesian, nearest image),
+    and b_new = b + sum_i c_i (b - b_i): exact when the bonding density is linear in
+    the positions along the path. With one earlier structure c is kept within [0, 1]
+    (Alfe's form); with more, directions the earlier moves barely span are dropped
+    (singular values below ``_PATH_CUTOFF`` of the largest) and the fitted move must
+    not be longer than the new one (spin densities use the first-order form).
 
     References
     ----------
-    D. Alfe, Comput. Phys. Commun. 118, 31 (1999) (from memory).
+    D. Alfe, Comput. Phys. Commun. 118, 31 (1999) (from memory); the fit over several
+    earlier structures as in T. A. Arias, M. C. Payne and J. D. Joannopoulos,
+    Phys. Rev. B 45, 1538 (1992) (from memory).
     """
     density = np.asarray(density, float)
     shape = density.shape[-3:]
     at_old = superposed_density(lattice, old_positions, species, forms, shape)
     change = superposed_density(lattice, new_positions, species, forms, shape) - at_old
-    if earlier is not None and density.ndim == 3:
-        alpha = _continuation(lattice, earlier[1], old_positions, new_positions)
-        if alpha > 0:
-            before = np.asarray(earlier[0], float) - superposed_density(
-                lattice, earlier[1], species, forms, shape)
-            change = change + alpha * (density - at_old - before)
+    if earlier is not None and isinstance(earlier[0], np.ndarray):
+        earlier = [earlier]
+    if earlier and density.ndim == 3:
+        coefficients = _path_coefficients(lattice, [p for _, p in earlier], old_positions,
+                                          new_positions)
+        bond = density - at_old
+        for c, (dens, pos) in zip(coefficients, earlier):
+            if c != 0.0:
+                before = np.asarray(dens, float) - superposed_density(lattice, pos, species,
+                                                                      forms, shape)
+                change = change + c * (bond - before)
     if density.ndim == 4:
         change = change / density.shape[0]
     moved = np.maximum(density + change, 0.0)
@@ -454,15 +468,38 @@ def moved_atoms_density(density: np.ndarray, lattice: np.ndarray, old_positions:
                     / moved.mean(axis=axes, keepdims=True))
 
 
-def _continuation(lattice, earlier, old, new) -> float:
-    """alpha in [0, 1] minimising |(new - old) - alpha (old - earlier)| (Cartesian, nearest
-    image of every atom); 0 when the last move was zero."""
-    def move(a, b):
-        d = np.asarray(b, float) - np.asarray(a, float)
-        return (d - np.rint(d)) @ np.asarray(lattice, float)
+#: At most this many structures before the previous one enter the moved-atoms start.
+EARLIER_STRUCTURES = 4
+#: Moves of earlier structures along directions with singular values below this fraction
+#: of the largest are not fitted (a nearly dependent path would amplify noise).
+_PATH_CUTOFF = 0.1
 
-    last, step = move(earlier, old), move(old, new)
-    norm = float(np.sum(last * last))
-    if norm == 0.0:
-        return 0.0
-    return float(np.clip(np.sum(step * last) / norm, 0.0, 1.0))
+
+def _moves(lattice, a, b) -> np.ndarray:
+    """Cartesian move (flat, bohr) from fractional positions ``a`` to ``b``, nearest image."""
+    d = np.asarray(b, float) - np.asarray(a, float)
+    return ((d - np.rint(d)) @ np.asarray(lattice, float)).ravel()
+
+
+def _path_coefficients(lattice, earlier, old, new) -> np.ndarray:
+    """c minimising |(new - old) - sum_i c_i (old - earlier_i)| (Cartesian, nearest image
+    of every atom). One earlier structure: c in [0, 1] (0 when the last move was zero).
+    More: a truncated least-squares fit, scaled down when the fitted move would be longer
+    than the new move."""
+    step = _moves(lattice, old, new)
+    columns = np.array([_moves(lattice, e, old) for e in earlier]).T
+    norms = np.linalg.norm(columns, axis=0)
+    if len(earlier) == 1:
+        if norms[0] == 0.0:
+            return np.zeros(1)
+        return np.array([float(np.clip(step @ columns[:, 0] / norms[0] ** 2, 0.0, 1.0))])
+    c = np.zeros(len(earlier))
+    use = norms > 0.0
+    if not np.any(use):
+        return c
+    c[use], *_ = np.linalg.lstsq(columns[:, use], step, rcond=_PATH_CUTOFF)
+    fitted = float(np.linalg.norm(columns @ c))
+    length = float(np.linalg.norm(step))
+    if fitted > length > 0.0:
+        c *= length / fitted
+    return c

@@ -28,12 +28,17 @@ class GridExchangeCorrelation:
     down), and ``sigma_derivatives``, the fields ``de/dsigma`` (unpolarised, one) or
     ``(de/dsigma_uu, de/dsigma_ud, de/dsigma_dd)`` (polarised) in Ha bohr^5; both
     ``None`` for local functionals.
+
+    Meta-GGAs (``functional.needs_kinetic_density``) also give ``tau_potential``,
+    ``v_tau = de/dtau`` (dimensionless), of the density's shape; the Hamiltonian
+    applies it as ``-1/2 div(v_tau grad psi)``.
     """
 
     energy_density: np.ndarray
     potential: np.ndarray
     gradients: np.ndarray | None = None
     sigma_derivatives: tuple | None = None
+    tau_potential: np.ndarray | None = None   # de/dtau (meta-GGAs), shape of the density
 
     def energy(self, volume: float) -> float:
         """E_xc = int n eps_xc d^3r as a grid sum (Ha)."""
@@ -41,7 +46,9 @@ class GridExchangeCorrelation:
 
 
 def exchange_correlation_on_grid(functional, density: np.ndarray, fft=None,
-                                 g_vectors: np.ndarray | None = None) -> GridExchangeCorrelation:
+                                 g_vectors: np.ndarray | None = None,
+                                 kinetic_density: np.ndarray | None = None, *,
+                                 energy_only: bool = False) -> GridExchangeCorrelation:
     """E_xc density and V_xc of ``density`` (``(*grid)`` or ``(2, *grid)``, bohr^-3).
 
     ``fft`` (a :class:`pwsolid.fft.FFTGrid`) and ``g_vectors`` (Cartesian G of the
@@ -60,7 +67,15 @@ def exchange_correlation_on_grid(functional, density: np.ndarray, fft=None,
     ``E = (Omega/N) sum_r e(r)`` with respect to the density at each point, divided by
     ``Omega/N`` (including the grid's Nyquist planes): energy and potential agree to
     rounding.
+
+    A meta-GGA also needs ``kinetic_density`` (tau, the density's shape, Ha bohr^-3);
+    its derivative ``de/dtau`` is returned as ``tau_potential``. With ``energy_only``
+    a meta-GGA returns the energy density alone (``potential`` is None): no derivatives
+    are made, which is several times cheaper.
     """
+    if getattr(functional, "needs_kinetic_density", False):
+        return _meta_on_grid(functional, density, fft, g_vectors, kinetic_density,
+                             energy_only)
     if not getattr(functional, "needs_gradients", False):
         if density.ndim == 3:
             eps, v = functional.evaluate(density)
@@ -83,6 +98,41 @@ def exchange_correlation_on_grid(functional, density: np.ndarray, fft=None,
         2.0 * d_uu * grad_up + d_ud * grad_down, 2.0 * d_dd * grad_down + d_ud * grad_up])
     return GridExchangeCorrelation(e, np.stack([d_up - div_up, d_down - div_down]),
                                    np.stack([grad_up, grad_down]), (d_uu, d_ud, d_dd))
+
+
+def _meta_on_grid(functional, density, fft, g_vectors, tau,
+                  energy_only: bool = False) -> GridExchangeCorrelation:
+    """The meta-GGA branch of :func:`exchange_correlation_on_grid`."""
+    if fft is None or g_vectors is None or tau is None:
+        raise ValueError(f"functional '{functional.name}' is a meta-GGA: pass the FFT grid, "
+                         "its G vectors and the kinetic-energy density")
+    if tau.shape != density.shape:
+        raise ValueError(f"the kinetic-energy density has shape {tau.shape}, the density "
+                         f"{density.shape}")
+    if energy_only:
+        grads = _gradients(fft, g_vectors, density if density.ndim == 4 else density[None])
+        if density.ndim == 3:
+            return GridExchangeCorrelation(functional.evaluate_meta_energy(
+                density, _dot(grads[0], grads[0]), tau), None)
+        up, down = grads
+        return GridExchangeCorrelation(functional.evaluate_meta_energy(
+            density[0], density[1], _dot(up, up), _dot(up, down), _dot(down, down), tau[0],
+            tau[1]), None)
+    if density.ndim == 3:
+        (grad,) = _gradients(fft, g_vectors, density[None])
+        e, de_dn, de_dsigma, de_dtau = functional.evaluate_meta(density, _dot(grad, grad), tau)
+        (divergence,) = _divergences(fft, g_vectors, [2.0 * de_dsigma * grad])
+        return GridExchangeCorrelation(e, de_dn - divergence, grad[None], (de_dsigma,),
+                                       de_dtau)
+    grad_up, grad_down = _gradients(fft, g_vectors, density)
+    e, d_up, d_down, d_uu, d_ud, d_dd, t_up, t_down = functional.evaluate_meta_polarized(
+        density[0], density[1], _dot(grad_up, grad_up), _dot(grad_up, grad_down),
+        _dot(grad_down, grad_down), tau[0], tau[1])
+    div_up, div_down = _divergences(fft, g_vectors, [
+        2.0 * d_uu * grad_up + d_ud * grad_down, 2.0 * d_dd * grad_down + d_ud * grad_up])
+    return GridExchangeCorrelation(e, np.stack([d_up - div_up, d_down - div_down]),
+                                   np.stack([grad_up, grad_down]), (d_uu, d_ud, d_dd),
+                                   np.stack([t_up, t_down]))
 
 
 def _dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:

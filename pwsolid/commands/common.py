@@ -379,7 +379,9 @@ def load_or_compute_density(run, density_option, say, accept_mismatch: bool = Fa
         say(f"Using the density in {path}")
         for line in stored["mismatches"]:
             say(f"  accepted on request: {line}")
-        return setup, stored["density"], None, None, stored["mismatches"]
+        # a meta-GGA's file also holds tau: the workflows take the whole mapping then
+        density = stored if "kinetic_density" in stored else stored["density"]
+        return setup, density, None, None, stored["mismatches"]
     say(f"No density file at {path}: running the ground state first")
     gs = ground_state(run.crystal, run.settings)
     save_density(path, gs)

@@ -3,8 +3,9 @@
 For each functional named (registry names, ``file:path.py``, or ``--user-file``),
 prints its energies per electron at a few densities, its correlation against the
 reference parametrisations and the Ceperley-Alder quantum Monte Carlo data, and
-the pass/fail list of exact conditions; writes the report as JSON and the plots
-as PNG and SVG. A failed condition is a finding: the exit code is 0 whenever the
+the pass/fail list of exact conditions (for a meta-GGA also its tables and plots
+against the reduced gradient s and the iso-orbital indicator alpha); writes the
+report as JSON and the plots as PNG and SVG. A failed condition is a finding: the exit code is 0 whenever the
 report was made, 3 for bad input (an unknown name, a file that does not load).
 """
 
@@ -133,6 +134,23 @@ def _condition_lines(report) -> list[str]:
     return lines
 
 
+def _meta_lines(report) -> list[str]:
+    """F_x(s, alpha) and eps_c(s, alpha) at the first rs, zeta = 0, of a meta-GGA."""
+    meta = report.meta
+    head = "  " + "s / alpha".rjust(9) + "".join(f" {a:>7g}" for a in meta.alpha)
+    lines = []
+    if meta.exchange_enhancement is not None:
+        lines += ["  Exchange enhancement F_x(s, alpha), spin-unpolarised", head]
+        lines += [f"  {s:>9g}" + "".join(f" {v:>7.4f}" for v in row)
+                  for s, row in zip(meta.s, meta.exchange_enhancement)]
+    if meta.correlation is not None:
+        lines += [f"  Correlation per electron in mHa at rs = {meta.rs[0]:g} bohr, zeta = 0",
+                  head]
+        lines += [f"  {s:>9g}" + "".join(f" {1e3 * v:>7.2f}" for v in row)
+                  for s, row in zip(meta.s, meta.correlation[0, 0])]
+    return lines
+
+
 def run(args) -> int:
     """Run the testbench for the functionals in ``args``; return the exit code."""
     from ..results import write_json
@@ -157,8 +175,10 @@ def run(args) -> int:
         if functional.origin != "built-in":
             print(f"  from {functional.origin}")
         print()
-        for block in (_table_lines(report, rs_printed), _monte_carlo_lines(report),
-                      _condition_lines(report)):
+        blocks = [_table_lines(report, rs_printed), _monte_carlo_lines(report)]
+        if getattr(report, "meta", None) is not None:
+            blocks.append(_meta_lines(report))
+        for block in (*blocks, _condition_lines(report)):
             print("\n".join(block))
             print()
         stem = output / f"{_slug(functional.name)}-uniform-gas"
@@ -169,6 +189,11 @@ def run(args) -> int:
             from ..plots.xc import UniformGasPlot
 
             written += save_figures(UniformGasPlot.from_report(report), stem)
+            if getattr(report, "meta", None) is not None:
+                from ..plots.meta import MetaGasPlot
+
+                written += save_figures(MetaGasPlot.from_report(report),
+                                        output / f"{_slug(functional.name)}-alpha-s")
         print("  Written: " + ", ".join(str(p) for p in written))
         print()
     return EXIT_OK

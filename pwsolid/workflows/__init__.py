@@ -12,7 +12,9 @@ from .pseudo_table import TableEntryResult, fit_pseudopotential
 from .lattice_test_set import LatticeTestSet, lattice_test_set
 from .relaxation import RelaxationResult, RelaxationSettings, relax_lattice, relax_structure
 from .structures import StructureComparison, compare_structures
+from .jellium_surface import JelliumSurfaceStudy, SurfaceSettings, jellium_surface
 from .uniform_gas import UniformGasReport, testbench_report, uniform_gas_table
+from .phonons import PhononResult, PhononSettings, phonons
 
 __all__ = [
     "BandStructure", "band_structure", "empirical_band_structure", "ConvergenceStudy",
@@ -21,4 +23,6 @@ __all__ = [
     "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
     "relax_structure", "TableEntryResult", "fit_pseudopotential",
     "LatticeTestSet", "lattice_test_set",
+    "PhononResult", "PhononSettings", "phonons",
+    "JelliumSurfaceStudy", "SurfaceSettings", "jellium_surface",
 ]

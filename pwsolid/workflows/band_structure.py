@@ -34,6 +34,8 @@ that are plotted.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
+
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -665,7 +667,13 @@ def gap_analysis(path: BandPath, eigenvalues, n_electrons: float, *,
 
 
 def _resolve_source(setup_or_ground_state, density):
-    """(setup, density, ground state or None) from either calling form."""
+    """(setup, density, ground state or None) from either calling form.
+
+    ``density`` may also be the mapping :func:`pwsolid.store.load_density` returns; its
+    ``kinetic_density`` (meta-GGAs) is then used by :func:`kinetic_density_of`.
+    """
+    if isinstance(density, Mapping):
+        density = density["density"]
     if isinstance(setup_or_ground_state, GroundState):
         gs = setup_or_ground_state
         return gs.setup, (gs.density if density is None else np.asarray(density, float)), gs
@@ -681,6 +689,15 @@ def _resolve_source(setup_or_ground_state, density):
         return setup_or_ground_state, d, None
     raise TypeError("expected a GroundState or a SystemSetup from pwsolid.scf.prepare, got "
                     f"{type(setup_or_ground_state).__name__}")
+
+
+def kinetic_density_of(setup_or_ground_state, density):
+    """The stored kinetic-energy density (meta-GGAs) of either calling form, or None."""
+    if isinstance(density, Mapping):
+        return density.get("kinetic_density")
+    if isinstance(setup_or_ground_state, GroundState) and density is None:
+        return setup_or_ground_state.kinetic_density
+    return None
 
 
 def _sample(crystal: Crystal, path, n_points: int | None) -> BandPath:
@@ -702,14 +719,15 @@ def _combined_progress(progress: Progress | None, offset: int, total: int):
 
 
 def _mesh_data(setup: SystemSetup, density, gs: GroundState | None, n_bands: int,
-               tolerance: float, progress, offset: int, total: int):
+               tolerance: float, progress, offset: int, total: int, tau=None):
     """(k-points, eigenvalues, weights, Fermi level or None) on the SCF mesh."""
     k_list = np.asarray(setup.kpoints.fractional)
     weights = np.asarray(setup.kpoints.weights)
     if gs is not None:
         return k_list, np.asarray(gs.eigenvalues), weights, getattr(gs, "fermi_level", None)
     eig = bands_at_kpoints(setup, density, k_list, n_bands, tolerance=tolerance,
-                           progress=_combined_progress(progress, offset, total))
+                           progress=_combined_progress(progress, offset, total),
+                           kinetic_density=tau)
     return k_list, eig, weights, _settings_fermi_level(setup, eig, weights)
 
 
@@ -766,6 +784,7 @@ def band_structure(setup_or_ground_state, density=None, path=None, *, n_points: 
     BandStructure
     """
     setup, dens, gs = _resolve_source(setup_or_ground_state, density)
+    tau = kinetic_density_of(setup_or_ground_state, density)
     crystal = setup.crystal
     bpath = _sample(crystal, path, n_points)
     nb = int(setup.n_bands if n_bands is None else n_bands)
@@ -773,8 +792,10 @@ def band_structure(setup_or_ground_state, density=None, path=None, *, n_points: 
         raise InputError("ask for at least one band", key="bands", value=n_bands)
     n_mesh = 0 if gs is not None else setup.kpoints.n_kpoints
     total = n_mesh + bpath.n_points
-    mk, meig, mw, ef = _mesh_data(setup, dens, gs, setup.n_bands, tolerance, progress, 0, total)
+    mk, meig, mw, ef = _mesh_data(setup, dens, gs, setup.n_bands, tolerance, progress, 0, total,
+                                  tau)
     eig = bands_at_kpoints(setup, dens, bpath.kpoints, nb, tolerance=tolerance,
+                           kinetic_density=tau,
                            progress=_combined_progress(progress, n_mesh, total))
     rotations = getattr(setup.kpoints.operations, "rotations", None)
     gaps = gap_analysis(bpath, eig, setup.n_electrons, mesh_kpoints=mk, mesh_eigenvalues=meig,

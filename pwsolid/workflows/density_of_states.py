@@ -41,7 +41,7 @@ from ..errors import InputError
 from ..kpoints import irreducible_kpoints, monkhorst_pack
 from ..scf import bands_at_kpoints
 from ..units import HARTREE_EV
-from .band_structure import _PATH_TOLERANCE, _resolve_source, _write_text
+from .band_structure import _PATH_TOLERANCE, _resolve_source, _write_text, kinetic_density_of
 
 __all__ = ["DOS_SCHEMA", "DOS_METHODS", "DOSResult", "density_of_states", "mesh_orbit_map",
            "read_dos_csv"]
@@ -302,7 +302,8 @@ def density_of_states(setup_or_ground_state, density=None, *, mesh=(12, 12, 12),
     ops = setup.symmetry if symmetric else None
     reps, orbit_of, _kset = mesh_orbit_map(m, ops, time_reversal=symmetric)
     full = monkhorst_pack(m, 0.0)
-    eig_irr = bands_at_kpoints(setup, dens, full[reps], nb, tolerance=tolerance, progress=progress)
+    eig_irr = bands_at_kpoints(setup, dens, full[reps], nb, tolerance=tolerance, progress=progress,
+                               kinetic_density=kinetic_density_of(setup_or_ground_state, density))
     eig = eig_irr[orbit_of].reshape(*m, nb)
 
     half = n_el / 2

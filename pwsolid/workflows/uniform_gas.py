@@ -13,7 +13,9 @@ its density, so each functional is simply evaluated at ``n = 3 / (4 pi rs^3)``. 
 functional that depends on the density gradient is tabulated in this uniform-gas
 (zero-gradient) limit; its report adds :class:`GradientDependence`, the exchange
 enhancement factor against the reduced gradient s and the correlation gradient term
-against t, and the gradient conditions of :mod:`pwsolid.xc.conditions`.
+against t, and the gradient conditions of :mod:`pwsolid.xc.conditions`. A meta-GGA's
+gradient tables are its slice alpha = 1, and its report adds the tables against s and
+alpha of :mod:`pwsolid.workflows.meta_gas` and the meta-GGA conditions.
 """
 
 from __future__ import annotations
@@ -29,6 +31,7 @@ from ..units import HARTREE_EV
 from ..xc import (CEPERLEY_ALDER_1980, ConditionResult, Functional, check_exact_conditions,
                   density_from_radius, functional_parts, get_functional)
 from ..xc.gga import correlation_gradient_squared, reduced_gradient_squared
+from .meta_gas import meta_dependence
 
 __all__ = [
     "TESTBENCH_SCHEMA",
@@ -313,6 +316,7 @@ class UniformGasReport:
     curves: UniformGasTable = field(repr=False)
     zeta_curves: UniformGasTable = field(repr=False)
     gradient: GradientDependence | None = field(default=None, repr=False)
+    meta: object | None = field(default=None, repr=False)   # meta_gas.MetaDependence
 
     @property
     def failed_conditions(self) -> tuple[str, ...]:
@@ -341,6 +345,8 @@ class UniformGasReport:
                            "origin": f.origin,
                            "spin_polarized": f.has_spin_polarized_form,
                            "needs_gradients": f.needs_gradients,
+                           "needs_kinetic_density": bool(getattr(f, "needs_kinetic_density",
+                                                                 False)),
                            "lda_parent": f.lda_parent},
             "references": list(self.references),
             "table": self.table.as_document(),
@@ -357,6 +363,10 @@ class UniformGasReport:
         if self.gradient is not None:
             document["table"]["gradient"] = "zero (uniform-gas limit)"
             document["gradient_dependence"] = self.gradient.as_document()
+        if self.meta is not None:
+            document["table"]["gradient"] = "zero, alpha = 1 (uniform-gas limit)"
+            document["gradient_dependence"]["slice"] = "alpha = 1 (tau = tau_W + tau_unif)"
+            document["meta_dependence"] = self.meta.as_document()
         return document
 
 
@@ -414,7 +424,8 @@ def testbench_report(functional: str | Functional,
         conditions=tuple(check_exact_conditions(subject)),
         curves=uniform_gas_table(everything, _CURVE_RS, _CURVE_ZETA),
         zeta_curves=uniform_gas_table(everything, _ZETA_CURVE_RS, _ZETA_CURVE_ZETA),
-        gradient=_gradient_dependence(subject))
+        gradient=_gradient_dependence(subject),
+        meta=meta_dependence(subject))
 
 
 # Its name starts with "test": keep test collectors from taking it for a test.

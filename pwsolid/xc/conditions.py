@@ -434,7 +434,8 @@ def check_exact_conditions(functional: Functional) -> list[ConditionResult]:
         functional that needs gradients then ``zero-gradient-limit``,
         ``exchange-enhancement-bound``, ``exchange-scaling-with-gradient``,
         ``correlation-gradient-coefficient``, ``correlation-vanishes-at-large-gradient``
-        and ``gradient-derivatives-consistency``. Conditions that
+        and ``gradient-derivatives-consistency``; for a meta-GGA instead the
+        conditions of :func:`pwsolid.xc.meta_conditions.check_meta_conditions`. Conditions that
         cannot be tested (no such part, no spin-polarised form) have
         ``passed = None``. A failed condition is a finding, never an exception.
 
@@ -465,7 +466,12 @@ def check_exact_conditions(functional: Functional) -> list[ConditionResult]:
         results += [_correlation_negative(c), _polarisation_weakens(c),
                     _high_density_logarithm(c), _low_density_tail(c)]
     results += [_lieb_oxford(functional), _potential_consistency(functional)]
-    if functional.needs_gradients:
+    if getattr(functional, "needs_kinetic_density", False):
+        # meta-GGAs: their own conditions on (rs, zeta, s, alpha) grids
+        from .meta_conditions import check_meta_conditions
+
+        results += check_meta_conditions(functional, parts.exchange, parts.correlation)
+    elif functional.needs_gradients:
         results += _gradient_conditions(functional, parts)
     return results
 

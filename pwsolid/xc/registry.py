@@ -387,6 +387,11 @@ _REGISTRY["pbe-exchange"] = gradient_functional(
     pbe_exchange, pbe_exchange_polarized, lda_parent="slater-exchange",
     exchange=PBE_EXCHANGE)
 
+# meta-GGAs (SCAN, r2SCAN): their module needs Functional, defined above
+from .meta_functional import built_in_meta_functionals  # noqa: E402
+
+_REGISTRY.update(built_in_meta_functionals())
+
 #: Registry names of the built-in functionals accepted by :func:`get_functional`.
 FUNCTIONALS: tuple[str, ...] = tuple(_REGISTRY)
 

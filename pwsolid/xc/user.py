@@ -21,6 +21,10 @@ Points whose total density is at or below :data:`pwsolid.xc.DENSITY_FLOOR` are
 never passed to the file's functions (they get zero energy and potential), and
 negative spin densities are passed as zero, as for the built-in kernels.
 
+A file that defines ``meta_energy_per_electron`` instead is a meta-GGA (a function
+of the densities, their gradients and the kinetic-energy densities): see
+:mod:`pwsolid.xc.user_meta`.
+
 Loading a file executes its code with the rights of the running program: load
 only files you trust. Nothing is ever unpickled.
 """
@@ -224,6 +228,10 @@ def load_user_functional(path: str | Path, name: str | None = None) -> Functiona
         raise _fail(path, "a functional file must be a Python file ending in .py")
     path = path.resolve()
     module = _execute(path)
+    if hasattr(module, "meta_energy_per_electron"):      # a meta-GGA file
+        from .user_meta import meta_from_module
+
+        return meta_from_module(module, path, name, FUNCTIONALS)
     energy = getattr(module, "energy_per_electron", None)
     if not callable(energy):
         raise _fail(path, "the file defines no function energy_per_electron(n_up, n_down)")

@@ -7,13 +7,16 @@ import pwsolid
 
 PACKAGE = Path(pwsolid.__file__).parent
 LAYERS = {
-    0: {"units", "errors", "resources", "_version", "progress", "safe_files"},
+    0: {"units", "errors", "resources", "_version", "progress", "safe_files",
+        "atomic_masses"},
     1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos", "optimize"},
-    2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath"},
+    2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath",
+        "force_constants", "phonon_spectra"},
     3: {"pseudo", "electrostatics", "hamiltonian", "energies", "xc_grid"},  # pseudo/atom.py too
     4: {"scf", "parallel", "settings", "store", "warm_start", "preflight", "forces", "stress"},
     5: {"workflows"},
-    6: {"config", "results", "plots", "cli", "commands", "relaxation_keys", "interop"},
+    6: {"config", "results", "plots", "cli", "commands", "relaxation_keys", "interop",
+        "phonon_keys"},
 }
 LAYER_OF = {name: layer for layer, names in LAYERS.items() for name in names}
 

@@ -275,11 +275,15 @@ def test_scf_tolerances_follow_the_forces():
 
     s = GroundStateSettings(energy_tolerance=1e-8, density_tolerance=1e-6)
     assert _step_settings(s, {}, 1e-4) == (s, False)              # first step: as given
-    loose, flag = _step_settings(s, {"force": 3e-2}, 1e-4)          # 100 x the threshold
-    assert flag and loose.density_tolerance == pytest.approx(1e-4)
-    assert loose.energy_tolerance == pytest.approx(1e-6)
+    # early: energy change 0.03 bohr x F, density residual 0.1 F per Ha/bohr
+    loose, flag = _step_settings(s, {"force": 3e-3}, 1e-4)          # 30 x the threshold
+    assert flag and loose.density_tolerance == pytest.approx(3e-4)
+    assert loose.energy_tolerance == pytest.approx(9e-5)
     capped, _ = _step_settings(s, {"force": 10.0}, 1e-4)
-    assert capped.density_tolerance == 1e-3 and capped.energy_tolerance == 1e-5
+    assert capped.density_tolerance == 1e-3 and capped.energy_tolerance == 1e-3
+    # never tighter than the settings' own
+    floor, _ = _step_settings(s.replace(density_tolerance=1e-3), {"force": 1e-3}, 1e-4)
+    assert floor.density_tolerance == 1e-3 and floor.energy_tolerance == pytest.approx(3e-5)
     assert _step_settings(s, {"force": 2e-4}, 1e-4) == (s, False)   # near the end: as given
     assert _step_settings(s, {"force": 3e-2}, None) == (s, False)   # cell moves only
 

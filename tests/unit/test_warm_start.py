@@ -169,3 +169,29 @@ def test_bonding_density_is_extrapolated_along_the_atoms_path():
                                   earlier=(density(0), POSITIONS))
         exact = superposed_density(LATTICE, new, species, GAUSS, GRID) + (1 + step) * bond
         assert np.allclose(out, exact, rtol=0, atol=1e-12 * exact.max())
+
+
+def test_bonding_density_is_fitted_over_several_earlier_structures():
+    # atoms on a plane of paths R(s, t) = R0 + s d1 + t d2 with a bonding part s B1 + t B2
+    # linear in the positions: from (0, 0), (1, 0), (1, 1) the start at (2, 1.5) is exact
+    # (new move (1, 0.5) = -0.5 (old - R(1, 0)) + 1 (old - R(0, 0))), which no
+    # continuation of the last move alone can be (it is not along (0, 1))
+    species = ["Si", "Si"]
+    d1 = np.array([[0.01, -0.02, 0.005], [-0.015, 0.01, 0.02]])
+    d2 = np.array([[-0.01, 0.0, 0.02], [0.02, 0.015, -0.005]])
+    x = np.arange(GRID[0]) / GRID[0]
+    y = np.arange(GRID[1]) / GRID[1]
+    b1 = (1e-4 * np.sin(2 * np.pi * x))[:, None, None] * np.ones(GRID)
+    b2 = (1e-4 * np.cos(2 * np.pi * y))[None, :, None] * np.ones(GRID)
+
+    def at(s, t):
+        pos = POSITIONS + s * d1 + t * d2
+        return superposed_density(LATTICE, pos, species, GAUSS, GRID) + s * b1 + t * b2, pos
+
+    (n_old, old), (n_1, p_1), (n_0, p_0) = at(1, 1), at(1, 0), at(0, 0)
+    exact, new = at(2, 1.5)
+    out = moved_atoms_density(n_old, LATTICE, old, new, species, GAUSS,
+                              earlier=[(n_1, p_1), (n_0, p_0)])
+    assert np.allclose(out, exact, rtol=0, atol=1e-12 * exact.max())
+    one = moved_atoms_density(n_old, LATTICE, old, new, species, GAUSS, earlier=(n_1, p_1))
+    assert np.abs(one - exact).max() > 1e-6           # the last move alone misses it

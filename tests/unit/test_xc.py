@@ -208,7 +208,8 @@ def test_mismatched_spin_shapes_are_rejected():
 def test_registry_names():
     assert xc.FUNCTIONALS == ("lda-pz81", "lda-pw92", "lda-pw92-precise", "lda-vwn", "lda-wigner",
                               "lda-hedin-lundqvist", "lda-von-barth-hedin",
-                              "slater-exchange", "pbe", "pbe-exchange")
+                              "slater-exchange", "pbe", "pbe-exchange", "scan",
+                              "scan-exchange", "r2scan", "r2scan-exchange")
     for name in xc.FUNCTIONALS:
         functional = xc.get_functional(name)
         assert isinstance(functional, xc.Functional)

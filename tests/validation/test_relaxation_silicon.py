@@ -99,6 +99,35 @@ def test_displaced_silicon_cell_relaxes_back_to_diamond():
     assert np.linalg.norm(d, axis=1).max() < 5e-3
 
 
+@pytest.mark.slow       # two relaxations of the 8-atom cell (~10 s each)
+def test_warm_started_relaxation_ends_where_a_cold_one_does():
+    # The warm starts, the loosened early SCF tolerances and the model-dielectric mixing
+    # change the path only: the relaxed structure is that of a relaxation with every SCF
+    # started from scratch at the settings' own tolerances (and plain Pulay mixing) to
+    # 1e-3 bohr, the positional uncertainty left by a force threshold of 1e-4 Ha/bohr
+    # over a bond stiffness of ~0.1 Ha/bohr^2 (common practice: the relaxed structure
+    # must not depend on how each step's SCF was started).
+    settings = pwsolid.GroundStateSettings(cutoff=8.0, kpoint_mesh=(1, 1, 1),
+                                           kpoint_shift=(0.5, 0.5, 0.5))
+    start = displaced_silicon_cell(0.1, seed=7)
+    common = dict(moves="positions", force_threshold=1e-4, keep_symmetry=False, max_steps=15)
+    warm = relax_structure(start, settings, RelaxationSettings(**common))
+    cold = relax_structure(start, settings.replace(mixing_preconditioner="none",
+                                                   mixing_weight=0.6),
+                           RelaxationSettings(**common, warm_start=False,
+                                              adaptive_scf_tolerance=False))
+    assert warm.converged and cold.converged
+    assert warm.n_moves <= 10                   # the issue's target for this cell
+    d = (warm.crystal.cartesian_positions - cold.crystal.cartesian_positions) \
+        @ np.linalg.inv(start.lattice)
+    d = (d - np.rint(d)) @ start.lattice
+    d -= d.mean(axis=0)                          # a rigid translation costs nothing
+    assert np.linalg.norm(d, axis=1).max() < 1e-3
+    # the warm path needs far fewer SCF iterations after the first step
+    assert sum(s["scf_iterations"] for s in warm.steps[1:]) \
+        < 0.5 * sum(s["scf_iterations"] for s in cold.steps[1:])
+
+
 @pytest.mark.slow       # a 7-point scan and a cell relaxation of 2-atom silicon (~20 s)
 def test_cell_relaxation_gives_the_lattice_constant_of_the_scan():
     # 20 Ha: the basis-set stress (+0.08 GPa) is small enough for its estimate to carry
