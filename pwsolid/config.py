@@ -176,6 +176,9 @@ PHONON_TABLE: tuple[Setting, ...] = tuple(
             unit=unit, default_text=default)
     for key, kind, unit, default, meaning in PHONON_KEYS)
 
+#: key of [pseudopotentials] naming a set of pwsolid's fitted table (pwsolid.pseudo.table)
+_FITTED_TABLE_KEY = "fitted_table"
+
 INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     "crystal": CRYSTAL_KEYS,
     "pseudopotentials": (),
@@ -228,6 +231,9 @@ def schema_table() -> tuple[KeyInfo, ...]:
             rows.append(KeyInfo("pseudopotentials.<species>", "file name", "", "bundled default",
                                 "pseudopotential file; a bare name is looked up beside the "
                                 "input, then among the bundled files"))
+            rows.append(KeyInfo(f"pseudopotentials.{_FITTED_TABLE_KEY}", "name", "", "none",
+                                "lda or pbe: every species without its own entry takes "
+                                "pwsolid's fitted table file of that set"))
         for key, spec in keys.items():
             default = _default_text(_format_default(spec)) if spec.field else spec.default_text
             rows.append(KeyInfo(spec.key, _KIND_TEXT[spec.kind] or spec.unit,
@@ -766,6 +772,11 @@ class _Reader:
     def _pseudopotentials(self, table: Mapping, crystal: Crystal) -> tuple[dict, dict]:
         present = crystal.unique_species
         resolved: dict[str, Path] = {}
+        table = dict(table)
+        if _FITTED_TABLE_KEY in table:
+            set_name = table.pop(_FITTED_TABLE_KEY)
+            for species, path in self._fitted_table(set_name, present, table).items():
+                resolved[species] = path
         for species, value in table.items():
             key = f"pseudopotentials.{species}"
             if species not in present:
@@ -776,6 +787,28 @@ class _Reader:
             text = self._file_text(value, key)
             resolved[species] = self._find_pseudo(species, text, key)
         return resolved, {s: str(p) for s, p in resolved.items()}
+
+    def _fitted_table(self, set_name, present, own: Mapping) -> dict:
+        """Files of pwsolid's fitted table (set ``lda`` or ``pbe``) for every species
+        without an entry of its own."""
+        from .pseudo.table import TABLE_SETS, table_file
+        key = f"pseudopotentials.{_FITTED_TABLE_KEY}"
+        if not isinstance(set_name, str) or set_name.lower() not in TABLE_SETS:
+            self.fail(f"must name a set of the fitted table: {', '.join(TABLE_SETS)}", key,
+                      set_name)
+        set_name = set_name.lower()
+        out = {}
+        for species in present:
+            if species in own:
+                continue
+            path = table_file(species, set_name)
+            if not path.is_file():
+                have = sorted(p.stem for p in path.parent.glob("*.toml"))
+                self.fail(f"the fitted table '{set_name}' has no file for {species} (it has "
+                          f"{', '.join(have) or 'none yet'}); name a file under "
+                          f"pseudopotentials.{species}", key, set_name)
+            out[species] = path.resolve()
+        return out
 
     def _find_pseudo(self, species: str, text: str, key: str) -> Path:
         path = Path(text).expanduser()

@@ -8,6 +8,8 @@ from .band_structure import BandStructure, band_structure, empirical_band_struct
 from .convergence import ConvergenceStudy, converge_settings
 from .density_of_states import DOSResult, density_of_states
 from .equation_of_state import VolumeScan, scan_volumes
+from .pseudo_table import TableEntryResult, fit_pseudopotential
+from .lattice_test_set import LatticeTestSet, lattice_test_set
 from .relaxation import RelaxationResult, RelaxationSettings, relax_lattice, relax_structure
 from .structures import StructureComparison, compare_structures
 from .jellium_surface import JelliumSurfaceStudy, SurfaceSettings, jellium_surface
@@ -19,7 +21,8 @@ __all__ = [
     "converge_settings", "DOSResult", "density_of_states", "VolumeScan", "scan_volumes",
     "StructureComparison", "compare_structures", "UniformGasReport", "testbench_report",
     "uniform_gas_table", "RelaxationResult", "RelaxationSettings", "relax_lattice",
-    "relax_structure",
+    "relax_structure", "TableEntryResult", "fit_pseudopotential",
+    "LatticeTestSet", "lattice_test_set",
     "PhononResult", "PhononSettings", "phonons",
     "JelliumSurfaceStudy", "SurfaceSettings", "jellium_surface",
 ]
