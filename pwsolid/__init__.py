@@ -70,3 +70,14 @@ __all__ = [
     "PhononResult", "PhononSettings", "phonons",
     "jellium_surface", "SurfaceSettings", "JelliumSurfaceStudy",
 ]
+
+# vibrational thermodynamics and the quasi-harmonic approximation
+from .thermodynamics import VibrationalSpectrum, harmonic_thermodynamics  # noqa: E402
+from .workflows.thermal_expansion import (QuasiHarmonicResult, quasi_harmonic,  # noqa: E402
+                                       quasi_harmonic_from_spectra)
+from .workflows.phonon_thermodynamics import (VibrationalThermodynamics,  # noqa: E402
+                                                   vibrational_thermodynamics)
+
+__all__ += ["VibrationalSpectrum", "harmonic_thermodynamics", "QuasiHarmonicResult",
+            "quasi_harmonic", "quasi_harmonic_from_spectra", "VibrationalThermodynamics",
+            "vibrational_thermodynamics"]

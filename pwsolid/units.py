@@ -45,6 +45,8 @@ HA_PER_BOHR2_ERG_PER_CM2: float = (_c.physical_constants["Hartree energy"][0] * 
                                    / (_c.physical_constants["Bohr radius"][0] * 100) ** 2)
 #: Boltzmann constant times 1 K, in hartree.
 KELVIN_HA: float = _c.k / _c.physical_constants["Hartree energy"][0]
+#: Molar gas constant N_A k_B in J/(mol K) (heat capacities and entropies per mole).
+GAS_CONSTANT_J_PER_MOL_K: float = _c.R
 #: Speed of light in atomic units, 1/alpha (about 137.036).
 SPEED_OF_LIGHT: float = 1.0 / _c.fine_structure
 

@@ -18,6 +18,8 @@ LAYERS = {
     6: {"config", "results", "plots", "cli", "commands", "relaxation_keys", "interop",
         "phonon_keys", "elastic_keys"},
 }
+LAYERS[1].add("thermodynamics")   # harmonic thermodynamics kernels (arrays in, arrays out)
+LAYERS[6].add("thermal_keys")     # the [thermal] table of the quasi-harmonic command
 LAYER_OF = {name: layer for layer, names in LAYERS.items() for name in names}
 
 

@@ -209,6 +209,18 @@ CASES = [
      "phonons.dos_width", "accepted units: THz, cm^-1, meV"),
     ("misspelt phonon key", CRYSTAL + "[phonons]\ndos_mseh = [8, 8, 8]\n",
      "phonons.dos_mseh", "did you mean 'phonons.dos_mesh'?"),
+    # thermal (the quasi-harmonic command)
+    ("temperature without unit", CRYSTAL + "[thermal]\nhighest_temperature = 800\n",
+     "thermal.highest_temperature", 'needs its unit, written as a string, e.g. "1000 K"'),
+    ("temperature step above the highest", CRYSTAL
+     + '[thermal]\nhighest_temperature = "100 K"\ntemperature_step = "200 K"\n',
+     "thermal.highest_temperature", "0 < step <= highest temperature"),
+    ("too few volumes for the fits", CRYSTAL + "[thermal]\nvolume_points = 4\n",
+     "thermal.volume_points", "integer from 5"),
+    ("unknown free-energy form", CRYSTAL + '[thermal]\nequation_of_state = "cubic"\n',
+     "thermal.equation_of_state", "accepted: birch-murnaghan, vinet, murnaghan, polynomial"),
+    ("misspelt thermal key", CRYSTAL + "[thermal]\nqmesh = [8, 8, 8]\n",
+     "thermal.qmesh", "did you mean 'thermal.q_mesh'?"),
     # Libxc names: without the library the message says how to install it
     ("unknown Libxc name", CRYSTAL + '[exchange_correlation]\nfunctional = "libxc:gga_c_pbee"\n',
      "exchange_correlation.functional",

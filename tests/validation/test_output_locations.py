@@ -107,6 +107,9 @@ DIRECTORY_OPTIONS = [
     ("xc-testbench", lambda i, p: ["xc-testbench", "--output-dir", p]),
     ("phonons", lambda i, p: ["phonons", i, "--output-dir", p]),
     ("jellium-surface", lambda i, p: ["jellium-surface", "--radii", "4", "--output-dir", p]),
+    ("quasi-harmonic", lambda i, p: ["quasi-harmonic", i, "--output-dir", p]),
+    ("vibrational-thermodynamics",
+     lambda i, p: ["vibrational-thermodynamics", i, "--output-dir", p]),
 ]
 INPUT_KEYS = ["result_file", "density_file", "checkpoint_file"]
 
