@@ -14,6 +14,7 @@ import time
 from pathlib import Path
 
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK, InputError
+from .common import check_output_file
 
 __all__ = ["register", "run"]
 
@@ -68,6 +69,8 @@ def run(args) -> int:
     if args.output and len(elements) * len(sets) != 1:
         raise InputError("--output takes one element and one set", key="--output",
                          value=args.output)
+    if args.output:
+        check_output_file(Path(args.output), "--output")
     log = None if args.quiet else print
     status = EXIT_OK
     for element in elements:

@@ -56,6 +56,9 @@ def setup(tmp_path, monkeypatch):
                         "static_response", _no_work)
     monkeypatch.setattr(importlib.import_module("pwsolid.workflows.jellium"),
                         "jellium_convergence", _no_work)
+    for module_name, name in (("pwsolid.workflows.pseudo_table", "fit_pseudopotential"),
+                              ("pwsolid.workflows.lattice_test_set", "lattice_test_set")):
+        monkeypatch.setattr(importlib.import_module(module_name), name, _no_work)
     for name in ("jellium_surface", "surface_convergence"):
         module = importlib.import_module("pwsolid.workflows.jellium_surface")
         if hasattr(module, name):
@@ -90,6 +93,10 @@ FILE_OPTIONS = [
     ("compare-structures --result-file",
      lambda i, p: ["compare-structures", i, i.replace("tiny-si", "tiny-si-2"), "--result-file",
                    p]),
+    ("elastic-constants --restart-file",
+     lambda i, p: ["elastic-constants", i, "--restart-file", p]),
+    ("fit-pseudopotential --output",
+     lambda i, p: ["fit-pseudopotential", "Si", "--set", "lda", "--output", p]),
     ("jellium-surface --points-file",
      lambda i, p: ["jellium-surface", "--radii", "4", "--points-file", p]),
 ]
@@ -107,6 +114,8 @@ DIRECTORY_OPTIONS = [
     ("xc-testbench", lambda i, p: ["xc-testbench", "--output-dir", p]),
     ("phonons", lambda i, p: ["phonons", i, "--output-dir", p]),
     ("jellium-surface", lambda i, p: ["jellium-surface", "--radii", "4", "--output-dir", p]),
+    ("elastic-constants", lambda i, p: ["elastic-constants", i, "--output-dir", p]),
+    ("lattice-test-set", lambda i, p: ["lattice-test-set", "--output-dir", p]),
     ("quasi-harmonic", lambda i, p: ["quasi-harmonic", i, "--output-dir", p]),
     ("vibrational-thermodynamics",
      lambda i, p: ["vibrational-thermodynamics", i, "--output-dir", p]),
