@@ -1,6 +1,6 @@
 """Benchmark: steps and SCF iterations of a relaxation, warm-started against cold.
 
-Run:  python benchmarks/relaxation_steps.py [--cutoff 8] [--mesh 1] [--shift 0.5] [--seed 7]
+Run:  python benchmarks/relaxation_steps.py [--cutoff 8] [--mesh 1] [--shift 0.5] [--seed 7 | --seeds 1-5]
                                            [--fixed-tolerance] [--json FILE]
 
 The conventional cubic silicon cell (8 atoms, 5.43 angstrom) with every atom moved
@@ -71,10 +71,14 @@ def main(argv=None) -> dict:
     ap.add_argument("--mesh", type=int, default=1)
     ap.add_argument("--shift", type=float, default=0.5, help="k-mesh shift, 0 or 0.5")
     ap.add_argument("--seed", type=int, default=7)
+    ap.add_argument("--seeds", help="run several displacements, e.g. 1-5 or 1,3,7, and "
+                                    "report each and the mean warm/cold ratio")
     ap.add_argument("--fixed-tolerance", action="store_true",
                     help="every SCF at the settings' tolerances (no loosening of early steps)")
     ap.add_argument("--json", help="also write the figures to this file")
     args = ap.parse_args(argv)
+    if args.seeds:
+        return _over_seeds(args)
     settings = pwsolid.GroundStateSettings(cutoff=args.cutoff, kpoint_mesh=(args.mesh,) * 3,
                                            kpoint_shift=(args.shift,) * 3)
     start = displaced_silicon_cell(seed=args.seed)
@@ -103,6 +107,41 @@ def main(argv=None) -> dict:
         with open(args.json, "w") as fh:
             json.dump(report, fh, indent=1)
     return report
+
+
+def _seed_list(text: str) -> list[int]:
+    """``"1-5"`` or ``"1,3,7"`` as a list of seeds."""
+    if "-" in text:
+        lo, hi = (int(t) for t in text.split("-"))
+        return list(range(lo, hi + 1))
+    return [int(t) for t in text.split(",")]
+
+
+def _over_seeds(args) -> dict:
+    """One relaxation pair per seed; each seed's figures and the mean ratio."""
+    runs = {}
+    for seed in _seed_list(args.seeds):
+        runs[seed] = main(_base_argv(args) + ["--seed", str(seed)])
+    ratios = [r.get("warm_over_cold_iterations") for r in runs.values()]
+    rows = [(seed, r["warm"]["moves"], r["cold"]["moves"], r["warm"]["scf_iterations"],
+             r["cold"]["scf_iterations"], r.get("warm_over_cold_iterations"))
+            for seed, r in runs.items()]
+    report = {"seeds": {str(k): v for k, v in runs.items()},
+              "mean_warm_over_cold": float(np.mean(ratios)) if None not in ratios else None}
+    print("seed  moves warm/cold  ratio  SCF iterations warm | cold")
+    for seed, mw, mc, iw, ic, q in rows:
+        print(f"{seed:>4}  {mw:>5}/{mc:<5}  {q:.3f}  {' '.join(map(str, iw))} | "
+              f"{' '.join(map(str, ic))}")
+    print(f"mean warm/cold over seeds: {report['mean_warm_over_cold']:.3f}")
+    if args.json:
+        with open(args.json, "w") as fh:
+            json.dump(report, fh, indent=1)
+    return report
+
+
+def _base_argv(args) -> list[str]:
+    out = ["--cutoff", str(args.cutoff), "--mesh", str(args.mesh), "--shift", str(args.shift)]
+    return out + (["--fixed-tolerance"] if args.fixed_tolerance else [])
 
 
 if __name__ == "__main__":
