@@ -85,6 +85,7 @@ def main(argv=None) -> dict:
     report = {"command": f"python benchmarks/relaxation_steps.py --cutoff {args.cutoff:g} "
                          f"--mesh {args.mesh} --shift {args.shift:g} --seed {args.seed}"
                          + (" --fixed-tolerance" if args.fixed_tolerance else "")}
+    finals = {}
     for label, warm in (("warm", True), ("cold", False)):
         relax = RelaxationSettings(moves="positions", force_threshold=1e-4, max_steps=30,
                                    keep_symmetry=False, warm_start=warm,
@@ -92,12 +93,15 @@ def main(argv=None) -> dict:
         t0 = time.perf_counter()
         res = relax_structure(start, settings, relax, log=print)
         iterations = [s["scf_iterations"] for s in res.steps]
+        finals[label] = res.crystal
         report[label] = {"converged": res.converged, "moves": res.n_moves,
                          "final_force_Ha_per_bohr": res.final["largest_force_Ha_per_bohr"],
                          "scf_iterations": iterations,
                          "mean_iterations_after_first": float(np.mean(iterations[1:]))
                          if len(iterations) > 1 else None,
                          "seconds": time.perf_counter() - t0}
+    d = finals["warm"].cartesian_positions - finals["cold"].cartesian_positions
+    report["warm_minus_cold_largest_position_bohr"] = float(np.abs(d).max())
     w, c = report["warm"], report["cold"]
     if w["mean_iterations_after_first"] and c["mean_iterations_after_first"]:
         report["warm_over_cold_iterations"] = (w["mean_iterations_after_first"]
@@ -128,9 +132,10 @@ def _over_seeds(args) -> dict:
             for seed, r in runs.items()]
     report = {"seeds": {str(k): v for k, v in runs.items()},
               "mean_warm_over_cold": float(np.mean(ratios)) if None not in ratios else None}
-    print("seed  moves warm/cold  ratio  SCF iterations warm | cold")
+    print("seed  moves warm/cold  ratio  |R_warm-R_cold| bohr  SCF iterations warm | cold")
     for seed, mw, mc, iw, ic, q in rows:
-        print(f"{seed:>4}  {mw:>5}/{mc:<5}  {q:.3f}  {' '.join(map(str, iw))} | "
+        dr = runs[seed]["warm_minus_cold_largest_position_bohr"]
+        print(f"{seed:>4}  {mw:>5}/{mc:<5}  {q:.3f}  {dr:.1e}  {' '.join(map(str, iw))} | "
               f"{' '.join(map(str, ic))}")
     print(f"mean warm/cold over seeds: {report['mean_warm_over_cold']:.3f}")
     if args.json:
