@@ -310,10 +310,10 @@ def scf_evaluator(settings: GroundStateSettings, *, symmetrize: bool = True,
         if pulay:
             if "pulay" not in memory:
                 sigma_p, note = _basis_stress(gs)
-                memory["pulay"] = (sigma_p, crystal.volume)
+                memory["pulay"] = (sigma_p, gs.crystal.volume)
                 messages.append(note)
             sigma_p, volume = memory["pulay"]
-            tensor = tensor + sigma_p * (volume / crystal.volume)
+            tensor = tensor + sigma_p * (volume / gs.crystal.volume)
         return Evaluation(gs.free_energy, np.asarray(forces.cartesian, float), tensor, gs,
                           iterations, gs.converged, tuple(messages), loose)
 
