@@ -33,6 +33,8 @@ from .workflows import (BandStructure, ConvergenceStudy, DOSResult, StructureCom
                         scan_volumes, testbench_report, uniform_gas_table)
 from .workflows.relaxation import (RelaxationResult, RelaxationSettings, relax_lattice,
                                    relax_structure)
+from .workflows.elastic_constants import ElasticResult, ElasticSettings, elastic_constants
+from .workflows.phonons import PhononResult, PhononSettings, phonons
 from .workflows.jellium_surface import JelliumSurfaceStudy, SurfaceSettings, jellium_surface
 from .xc import FUNCTIONALS, get_functional, load_user_functional
 from .xc.conditions import check_exact_conditions
@@ -64,5 +66,18 @@ __all__ = [
     "load_user_functional", "check_exact_conditions", "WavefunctionStart",
     "AtomicForces", "atomic_forces", "StressTensor", "stress_tensor",
     "relax_structure", "relax_lattice", "RelaxationSettings", "RelaxationResult",
+    "elastic_constants", "ElasticSettings", "ElasticResult",
+    "PhononResult", "PhononSettings", "phonons",
     "jellium_surface", "SurfaceSettings", "JelliumSurfaceStudy",
 ]
+
+# vibrational thermodynamics and the quasi-harmonic approximation
+from .thermodynamics import VibrationalSpectrum, harmonic_thermodynamics  # noqa: E402
+from .workflows.thermal_expansion import (QuasiHarmonicResult, quasi_harmonic,  # noqa: E402
+                                       quasi_harmonic_from_spectra)
+from .workflows.phonon_thermodynamics import (VibrationalThermodynamics,  # noqa: E402
+                                                   vibrational_thermodynamics)
+
+__all__ += ["VibrationalSpectrum", "harmonic_thermodynamics", "QuasiHarmonicResult",
+            "quasi_harmonic", "quasi_harmonic_from_spectra", "VibrationalThermodynamics",
+            "vibrational_thermodynamics"]

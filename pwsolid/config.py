@@ -32,6 +32,9 @@ import numpy as np
 from .crystal import ELEMENTS, PROTOTYPES, Crystal
 from .errors import InputError
 from .relaxation_keys import RELAXATION_KEYS, read_relaxation
+from .elastic_keys import ELASTIC_KEYS, read_elastic
+from .phonon_keys import PHONON_KEYS, read_phonons
+from .thermal_keys import THERMAL_KEYS, read_thermal
 from .resources import inputs_dir, pseudopotential_dir
 from .settings import SETTINGS_TABLE, UNIT_TEXT, GroundStateSettings, Setting
 from .preflight import check_cell_shape
@@ -166,6 +169,23 @@ RELAXATION_TABLE: tuple[Setting, ...] = tuple(
             kind if kind in ("name", "integer", "boolean") else "anything", meaning,
             unit=unit, default_text=default)
     for key, kind, unit, default, meaning in RELAXATION_KEYS)
+#: Keys of [elastic_constants] (the elastic-constants command), read and checked by
+#: :func:`pwsolid.elastic_keys.read_elastic`.
+ELASTIC_TABLE: tuple[Setting, ...] = tuple(
+    Setting(f"elastic_constants.{key}", None,
+            kind if kind in ("number", "integer", "boolean") else "anything", meaning,
+            unit=unit, default_text=default)
+    for key, kind, unit, default, meaning in ELASTIC_KEYS)
+
+#: Keys of [phonons] (the phonons command), read by :func:`pwsolid.phonon_keys.read_phonons`.
+PHONON_TABLE: tuple[Setting, ...] = tuple(
+    Setting(f"phonons.{key}", None,
+            kind if kind in ("name", "integer", "boolean") else "anything", meaning,
+            unit=unit, default_text=default)
+    for key, kind, unit, default, meaning in PHONON_KEYS)
+
+#: key of [pseudopotentials] naming a set of pwsolid's fitted table (pwsolid.pseudo.table)
+_FITTED_TABLE_KEY = "fitted_table"
 
 INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     "crystal": CRYSTAL_KEYS,
@@ -173,6 +193,12 @@ INPUT_TABLES: dict[str, tuple[Setting, ...]] = {
     **_settings_tables(),
     "output": OUTPUT_KEYS,
     "relaxation": RELAXATION_TABLE,
+    "elastic_constants": ELASTIC_TABLE,
+    "phonons": PHONON_TABLE,
+    "thermal": tuple(   # [thermal] (quasi-harmonic command): read by thermal_keys.read_thermal
+        Setting(f"thermal.{key}", None, kind if kind in ("integer", "integers3") else "anything",
+                meaning, unit=unit, default_text=default)
+        for key, kind, unit, default, meaning in THERMAL_KEYS),
 }
 _SETTINGS_SECTIONS = tuple(_settings_tables())
 _SCHEMA: dict[str, dict[str, Setting]] = {
@@ -214,6 +240,9 @@ def schema_table() -> tuple[KeyInfo, ...]:
             rows.append(KeyInfo("pseudopotentials.<species>", "file name", "", "bundled default",
                                 "pseudopotential file; a bare name is looked up beside the "
                                 "input, then among the bundled files"))
+            rows.append(KeyInfo(f"pseudopotentials.{_FITTED_TABLE_KEY}", "name", "", "none",
+                                "lda or pbe: every species without its own entry takes "
+                                "pwsolid's fitted table file of that set"))
         for key, spec in keys.items():
             default = _default_text(_format_default(spec)) if spec.field else spec.default_text
             rows.append(KeyInfo(spec.key, _KIND_TEXT[spec.kind] or spec.unit,
@@ -277,6 +306,9 @@ class RunInput:
     checkpoint_file: Path | None = None
     checkpoint_interval: int = 1
     relaxation: Any = None     # RelaxationSettings of the [relaxation] table (or defaults)
+    elastic: Any = None        # ElasticSettings of the [elastic_constants] table (or defaults)
+    phonons: Any = None        # PhononSettings of the [phonons] table (or defaults)
+    thermal: Any = None        # ThermalSettings of the [thermal] table (or defaults)
 
 
 # -- reading -------------------------------------------------------------
@@ -352,7 +384,18 @@ def parse_input(document: Mapping, *, source: str | None = None,
     _check_cell_shape(run, source)
     table = document.get("relaxation")          # [relaxation]: see relaxation_keys.py
     echo = run.echo if table is None else {**run.echo, "relaxation": dict(table)}
-    return replace(run, relaxation=read_relaxation(table, source), echo=echo)
+    elastic = document.get("elastic_constants")  # [elastic_constants]: see elastic_keys.py
+    if elastic is not None:
+        echo = {**echo, "elastic_constants": dict(elastic)}
+    phonon_table = document.get("phonons")      # [phonons]: see phonon_keys.py
+    if phonon_table is not None:
+        echo = {**echo, "phonons": dict(phonon_table)}
+    run = replace(run, relaxation=read_relaxation(table, source), echo=echo,
+                  elastic=read_elastic(elastic, source),
+                  phonons=read_phonons(phonon_table, source))
+    table = document.get("thermal")             # [thermal]: see thermal_keys.py
+    echo = run.echo if table is None else {**run.echo, "thermal": dict(table)}
+    return replace(run, thermal=read_thermal(table, source), echo=echo)
 
 
 def _check_cell_shape(run: RunInput, source: str | None) -> None:
@@ -743,6 +786,11 @@ class _Reader:
     def _pseudopotentials(self, table: Mapping, crystal: Crystal) -> tuple[dict, dict]:
         present = crystal.unique_species
         resolved: dict[str, Path] = {}
+        table = dict(table)
+        if _FITTED_TABLE_KEY in table:
+            set_name = table.pop(_FITTED_TABLE_KEY)
+            for species, path in self._fitted_table(set_name, present, table).items():
+                resolved[species] = path
         for species, value in table.items():
             key = f"pseudopotentials.{species}"
             if species not in present:
@@ -753,6 +801,28 @@ class _Reader:
             text = self._file_text(value, key)
             resolved[species] = self._find_pseudo(species, text, key)
         return resolved, {s: str(p) for s, p in resolved.items()}
+
+    def _fitted_table(self, set_name, present, own: Mapping) -> dict:
+        """Files of pwsolid's fitted table (set ``lda`` or ``pbe``) for every species
+        without an entry of its own."""
+        from .pseudo.table import TABLE_SETS, table_file
+        key = f"pseudopotentials.{_FITTED_TABLE_KEY}"
+        if not isinstance(set_name, str) or set_name.lower() not in TABLE_SETS:
+            self.fail(f"must name a set of the fitted table: {', '.join(TABLE_SETS)}", key,
+                      set_name)
+        set_name = set_name.lower()
+        out = {}
+        for species in present:
+            if species in own:
+                continue
+            path = table_file(species, set_name)
+            if not path.is_file():
+                have = sorted(p.stem for p in path.parent.glob("*.toml"))
+                self.fail(f"the fitted table '{set_name}' has no file for {species} (it has "
+                          f"{', '.join(have) or 'none yet'}); name a file under "
+                          f"pseudopotentials.{species}", key, set_name)
+            out[species] = path.resolve()
+        return out
 
     def _find_pseudo(self, species: str, text: str, key: str) -> Path:
         path = Path(text).expanduser()

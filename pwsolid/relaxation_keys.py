@@ -15,7 +15,7 @@ from collections.abc import Mapping
 from .errors import InputError
 from .units import ENERGY_UNITS, HA_PER_BOHR3_GPA, LENGTH_UNITS, parse_quantity
 
-__all__ = ["RELAXATION_KEYS", "read_relaxation", "parse_force", "parse_pressure"]
+__all__ = ["RELAXATION_KEYS", "read_relaxation", "parse_force", "parse_pressure", "plain_value"]
 
 #: (key, kind, unit kind, default as written, meaning) of every key of [relaxation].
 RELAXATION_KEYS: tuple[tuple[str, str, str, str, str], ...] = (
@@ -78,6 +78,18 @@ def parse_pressure(text, key: str = "pressure", source=None) -> float:
     return _per_length(text, "pressure", key, source)
 
 
+def plain_value(value, kind: str, key: str, source=None):
+    """A TOML integer or boolean of a table read by hand, checked: InputError otherwise
+    (shared by the [relaxation] and [elastic_constants] readers)."""
+    if kind == "integer" and (isinstance(value, bool) or not isinstance(value, int)):
+        raise InputError("must be an integer (a TOML integer, no decimal point)", key=key,
+                         value=value, source=source, has_value=True)
+    if kind == "boolean" and not isinstance(value, bool):
+        raise InputError("must be a TOML boolean: true or false (no quotes)", key=key,
+                         value=value, source=source, has_value=True)
+    return value
+
+
 def read_relaxation(table: Mapping | None, source=None):
     """The :class:`~pwsolid.workflows.relaxation.RelaxationSettings` of a [relaxation]
     table (the defaults for ``None``); every mistake is one InputError naming the key."""
@@ -98,14 +110,8 @@ def read_relaxation(table: Mapping | None, source=None):
             kwargs[key] = _per_length(value, unit, dotted, source)
         elif unit == "length":
             kwargs[key] = parse_quantity(value, "length", key=dotted, source=source)
-        elif kind == "integer":
-            if isinstance(value, bool) or not isinstance(value, int):
-                bad("must be an integer (a TOML integer, no decimal point)")
-            kwargs[key] = value
-        elif kind == "boolean":
-            if not isinstance(value, bool):
-                bad("must be a TOML boolean: true or false (no quotes)")
-            kwargs[key] = value
+        elif kind in ("integer", "boolean"):
+            kwargs[key] = plain_value(value, kind, dotted, source)
         else:
             if not isinstance(value, str):
                 bad("must be one of positions, cell, both (a string)")

@@ -25,6 +25,15 @@ __all__ = ["RESULT_SCHEMA", "ground_state_document", "write_json",
            "save_density", "load_density", "atomic_write_bytes"]
 
 
+def _file_sha256(path) -> str | None:
+    """SHA-256 of a pseudopotential file's bytes: which file exactly a result used."""
+    import hashlib
+    try:
+        return hashlib.sha256(Path(path).read_bytes()).hexdigest()
+    except (OSError, TypeError):
+        return None
+
+
 def _ev(x):
     return None if x is None else float(x) * HARTREE_EV
 
@@ -93,7 +102,8 @@ def ground_state_document(gs: GroundState, *, input_echo: dict | None = None,
         "electrons_per_cell": setup.n_electrons,
         "bands": setup.n_bands,
         "pseudopotentials": {
-            s: {"file": str(pp.source_file), "form": pp.form, "valence": pp.valence,
+            s: {"file": str(pp.source_file), "file_sha256": _file_sha256(pp.source_file),
+                "form": pp.form, "valence": pp.valence,
                 "reference": pp.reference, "status": pp.status,
                 "partial_core": (None if pp.partial_core is None else
                                  {"charge": pp.partial_core.charge,

@@ -45,6 +45,8 @@ HA_PER_BOHR2_ERG_PER_CM2: float = (_c.physical_constants["Hartree energy"][0] * 
                                    / (_c.physical_constants["Bohr radius"][0] * 100) ** 2)
 #: Boltzmann constant times 1 K, in hartree.
 KELVIN_HA: float = _c.k / _c.physical_constants["Hartree energy"][0]
+#: Molar gas constant N_A k_B in J/(mol K) (heat capacities and entropies per mole).
+GAS_CONSTANT_J_PER_MOL_K: float = _c.R
 #: Speed of light in atomic units, 1/alpha (about 137.036).
 SPEED_OF_LIGHT: float = 1.0 / _c.fine_structure
 
@@ -152,3 +154,14 @@ def to_ev(energy_ha):
 def to_angstrom(length_bohr):
     """Convert bohr to angstrom (works on arrays)."""
     return length_bohr * BOHR_ANGSTROM
+
+
+# --- lattice vibrations (appended for the phonon workflow) --------------------------
+#: One dalton (unified atomic mass unit) in electron masses.
+AMU_ELECTRON_MASSES: float = _c.physical_constants["atomic mass constant"][0] / _c.m_e
+#: An angular frequency of 1 Ha/hbar as an ordinary frequency in THz (E_h / h / 1e12).
+HARTREE_THZ: float = _c.physical_constants["hartree-hertz relationship"][0] * 1e-12
+#: One THz in wavenumbers, cm^-1 (1e12 / c / 100).
+THZ_INVERSE_CM: float = 1e12 / _c.c / 100.0
+#: One THz as an energy in meV (h * 1e12 / e * 1e3).
+THZ_MEV: float = _c.h * 1e12 / _c.e * 1e3

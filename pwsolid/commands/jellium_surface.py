@@ -5,8 +5,8 @@ from __future__ import annotations
 from pathlib import Path
 
 from ..errors import EXIT_NOT_CONVERGED, EXIT_OK, InputError
-from .common import (check_output_dir, parse_formats, parse_int, parse_numbers, save_figures,
-                     write_or_keep)
+from .common import (check_output_dir, check_output_file, parse_formats, parse_int,
+                     parse_numbers, save_figures, write_or_keep)
 
 __all__ = ["register", "run"]
 
@@ -103,6 +103,8 @@ def run(args) -> int:
                          value=args.radii)
     settings = _settings(args)
     out = check_output_dir(Path(args.output_dir))
+    if args.points_file:
+        check_output_file(Path(args.points_file), "--points-file")
     if args.convergence_at is not None:
         return _convergence(args, settings, out, formats)
     study = jellium_surface(radii, settings, points_file=args.points_file,

@@ -315,7 +315,8 @@ def solve_radial_atom(local_potential: Callable[[np.ndarray], np.ndarray],
     configuration : str or mapping
         Shell occupations, see :func:`parse_configuration`.
     functional : str, callable or Functional
-        Exchange-correlation functional of :mod:`pwsolid.xc` (a local one).
+        Exchange-correlation functional of :mod:`pwsolid.xc`: local, or of the density
+        gradient (PBE; not together with ``core_density``).
     interacting : bool
         False leaves out Hartree and exchange-correlation (a one-electron test mode).
     basis : RadialBasis, optional
@@ -361,9 +362,10 @@ def _solve(local_potential, channels, configuration, functional, interacting, ba
                          "give no projectors", key="relativistic", value=True)
     basis = basis or radial_basis()
     xc = get_functional(functional) if interacting else None
-    if xc is not None and xc.needs_gradients:
-        raise InputError("the radial atom takes local functionals only", key="functional",
-                         value=xc.name)
+    gradient = xc is not None and xc.needs_gradients
+    if gradient and core_density is not None:
+        raise InputError("a model core density is taken with local functionals only",
+                         key="functional", value=xc.name)
     r, w = basis.points, basis.weights
     v_ion = np.asarray(local_potential(r), dtype=float)
     n_core = np.zeros_like(r) if core_density is None else np.asarray(core_density(r), float)
@@ -377,11 +379,17 @@ def _solve(local_potential, channels, configuration, functional, interacting, ba
 
     unscaled: dict = {}
 
-    def solve(v_scf):
+    n_q = r.size
+
+    def solve(v_mixed):
+        # v_mixed: the local Hartree + xc potential, followed for a gradient functional
+        # by q = 2 de/dsigma n' of the gradient term (see _gradient_matrix)
+        v_scf = v_mixed[:n_q]
+        extra = _gradient_matrix(basis, v_mixed[n_q:]) if gradient else 0.0
         eps, orbs, coefs = {}, {}, {}
         kin = C_LIGHT ** 2 / (2 * C_LIGHT ** 2 - v_ion - v_scf) if relativistic else None
         for l, items in by_l.items():
-            h, s = channel_matrices(basis, l, v_ion + v_scf, nl_mats.get(l), kin)
+            h, s = channel_matrices(basis, l, v_ion + v_scf, nl_mats.get(l, 0.0) + extra, kin)
             top = max(n for n, _ in items) - lowest[l]
             e, c = eigh(h, s, subset_by_index=[0, top])
             raw = e
@@ -400,15 +408,31 @@ def _solve(local_potential, channels, configuration, functional, interacting, ba
     def density_of(orbs):
         return sum(shells[key] * u * u for key, u in orbs.items()) / (4 * math.pi * r * r)
 
-    def effective(n):
+    def slope_of(coefs):
+        # dn/dr of n = sum f u^2 / (4 pi r^2), from the splines' own derivatives
+        total = np.zeros_like(r)
+        for key, c in coefs.items():
+            u, du = basis.values @ c, basis.derivatives @ c
+            total += shells[key] * (2 * u * du / (r * r) - 2 * u * u / r ** 3)
+        return total / (4 * math.pi)
+
+    def effective(n, coefs):
+        """Hartree potential, local xc potential (the q part appended for a gradient
+        functional) and the xc energy per volume."""
         if xc is None:
             return np.zeros_like(r), np.zeros_like(r), np.zeros_like(r)
         v_h = radial_hartree_potential(basis, n)
+        if gradient:
+            slope = slope_of(coefs)
+            e, de_dn, de_dsigma = xc.evaluate_gradient(n, slope * slope)
+            # the far tail, where n underflows: no potential
+            q = np.where(n > _GRADIENT_FLOOR, 2 * de_dsigma * slope, 0.0)
+            return v_h, np.concatenate([np.where(n > _GRADIENT_FLOOR, de_dn, 0.0), q]), e
         e_xc, v_xc = xc.evaluate(n + n_core)
-        return v_h, v_xc, e_xc
+        return v_h, v_xc, e_xc * (n + n_core)
 
     mixer = PulayMixer(weight=mixing_weight, history=8)
-    v_in = np.zeros_like(r)
+    v_in = np.zeros(2 * n_q if gradient else n_q)
     old = None
     history = []
     converged = False
@@ -416,10 +440,13 @@ def _solve(local_potential, channels, configuration, functional, interacting, ba
     for it in range(1, max_iterations + 1):
         eps, orbs, coefs = solve(v_in)
         n = density_of(orbs)
-        v_h, v_xc, _ = effective(n)
-        v_out = v_h + v_xc
+        v_h, v_xc, _ = effective(n, coefs)
+        v_out = v_xc.copy()
+        v_out[:n_q] += v_h
         change = 0.0 if old is None else max(abs(eps[k] - old[k]) for k in eps)
-        residual = float(np.sqrt(w @ ((v_out - v_in) ** 2 * r * r)))
+        residual = float(np.sqrt(w @ ((v_out[:n_q] - v_in[:n_q]) ** 2 * r * r)))
+        if gradient:
+            residual += float(np.sqrt(w @ ((v_out[n_q:] - v_in[n_q:]) ** 2 * r * r)))
         history.append(change)
         old = eps
         if xc is None or (it > 1 and change < tolerance and residual < tolerance):
@@ -432,23 +459,46 @@ def _solve(local_potential, channels, configuration, functional, interacting, ba
                       stacklevel=3)
     # energies from the final orbitals and their own density
     n = density_of(orbs)
-    v_h, v_xc, e_xc = effective(n)
+    v_h, v_xc, e_xc = effective(n, coefs)
     # kinetic energy of whichever kinetic operator was used: eigenvalue minus the
     # potential terms of the final eigenproblem (whose potential was v_in)
     nl_of = {k: (c @ nl_mats[k[1]] @ c if k[1] in nl_mats else 0.0) for k, c in coefs.items()}
-    kinetic = sum(shells[k] * (unscaled[k] - w @ (orbs[k] ** 2 * (v_ion + v_in)) - nl_of[k])
-                  for k in coefs)
+    grad_mat = _gradient_matrix(basis, v_in[n_q:]) if gradient else None
+    grad_of = {k: (c @ grad_mat @ c if gradient else 0.0) for k, c in coefs.items()}
+    kinetic = sum(shells[k] * (unscaled[k] - w @ (orbs[k] ** 2 * (v_ion + v_in[:n_q]))
+                               - nl_of[k] - grad_of[k]) for k in coefs)
     nonloc = sum(shells[k] * nl_of[k] for k in coefs)
     rho = 4 * math.pi * r * r * n
     energies = {"kinetic": float(kinetic), "local": float(w @ (rho * v_ion)),
                 "nonlocal": float(nonloc), "hartree": float(0.5 * w @ (rho * v_h)),
-                "xc": float(w @ (4 * math.pi * r * r * (n + n_core) * e_xc))}
+                "xc": float(w @ (4 * math.pi * r * r * e_xc))}
     return PseudoAtom(
         eigenvalues={_label(*k): v for k, v in eps.items()},
         occupations={_label(*k): shells[k] for k in eps},
         total_energy=float(sum(energies.values())), energies=energies,
         converged=converged, iterations=it, points=r, density=n,
         orbitals={_label(*k): u for k, u in orbs.items()}, history=tuple(history))
+
+
+#: bohr^-3: below this density (the far tail) the gradient potential is left out
+_GRADIENT_FLOOR = 1e-14
+
+
+def _gradient_matrix(basis: RadialBasis, q: np.ndarray) -> np.ndarray:
+    """Galerkin matrix of the gradient part of a gradient functional's potential, Ha.
+
+    Notes
+    -----
+    With E_xc = int e(n, sigma) d^3r, sigma = n'^2, the matrix element between
+    psi_a = B_a/r Y_lm and psi_b is int [e_n psi_a psi_b + 2 e_sigma grad n . grad(psi_a
+    psi_b)] d^3r; the second part, with q = 2 e_sigma n', is
+    int q [B_a' B_b + B_a B_b' - 2 B_a B_b / r] dr (no second derivative of the density;
+    the same weak form as the plane-wave gradient potential).
+    """
+    r, w, b, db = basis.points, basis.weights, basis.values, basis.derivatives
+    wq = w * q
+    m = db.T @ (wq[:, None] * b)
+    return m + m.T - 2 * b.T @ ((wq / r)[:, None] * b)
 
 
 def solve_pseudo_atom(pseudo, configuration=None, *, functional="lda-pz81",

@@ -161,7 +161,7 @@ def load_pseudopotential(path) -> Pseudopotential:
     except tomllib.TOMLDecodeError as exc:
         raise InputError(f"not valid TOML: {exc}", source=src) from None
     allowed = {"element", "valence_charge", "form", "parameters", "source", "suggested_cutoff",
-               "projectors", "partial_core"}
+               "projectors", "partial_core", "fit_record"}
     for key in doc:
         if key not in allowed:
             raise InputError(f"unknown key; accepted keys: {', '.join(sorted(allowed))}",

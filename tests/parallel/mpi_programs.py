@@ -111,10 +111,38 @@ def volume_scan() -> dict:
             "b0_gpa": scan.b0_gpa}
 
 
+def phonons() -> dict:
+    import os
+    from pathlib import Path
+
+    from pwsolid.force_constants import make_supercell
+    from pwsolid.workflows.phonons import PhononSettings, phonons as run_phonons
+
+    sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+    from spring_model import spring_solver
+
+    comm = world()
+    # zincblende: two inequivalent atoms, so two displacements to share; a spring
+    # model stands in for the SCF (the sharing does not depend on the solver)
+    gaas = pwsolid.zincblende(pwsolid.angstrom(5.65), ("Ga", "As"))
+    ps = PhononSettings(supercell=(2, 2, 2), dos_mesh=(4, 4, 4), path_points=20)
+    sup = make_supercell(gaas, ps.supercell).supercell
+    settings = pwsolid.GroundStateSettings(      # the records' fingerprint reads the files
+        pseudopotentials={"Ga": "Ga-hartwigsen-goedecker-hutter.toml",
+                          "As": "As-hartwigsen-goedecker-hutter.toml"})
+    result = run_phonons(gaas, settings, ps, record_dir="records",
+                         solver=spring_solver(sup, 5.0))      # nearest neighbours: 4.62 bohr
+    freqs = result.frequencies([[0, 0, 0], [0.5, 0, 0.5]]).tolist()
+    return {"processes": comm.size, "frequencies": freqs,
+            "frequencies_on_every_process": comm.allgather(freqs),
+            "computed_by": [h["process"] for h in result.history],
+            "records": sorted(os.listdir("records"))}
+
+
 if __name__ == "__main__":
     what, out = sys.argv[1], sys.argv[2]
     programs = {"volume-scan": volume_scan, "gamma-supercell": gamma_supercell,
-                "band-path": band_path, "forces": forces}
+                "band-path": band_path, "forces": forces, "phonons": phonons}
     result = programs[what]() if what in programs else ground_state(what)
     if world().rank == 0:
         with open(out, "w") as fh:

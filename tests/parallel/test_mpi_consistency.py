@@ -160,3 +160,17 @@ def test_band_structure_kpoints_are_spread_and_gathered(tmp_path):
     # tolerance (1e-7): eigenvalues to well below the 1e-6 residual norm
     np.testing.assert_allclose(two["bands_Ha"], serial["bands_Ha"], atol=1e-8, rtol=0)
     assert two["progress"] == serial["progress"] == [[i, 5] for i in range(1, 6)]
+
+
+def test_phonon_displacements_are_shared_and_recorded_by_their_process(tmp_path):
+    (tmp_path / "one").mkdir()
+    (tmp_path / "two").mkdir()
+    serial = _run(["phonons"], tmp_path / "one", name="serial.json")
+    two = _run(["phonons"], tmp_path / "two", processes=2, name="two.json")
+    assert serial["computed_by"] == [0, 0] and two["computed_by"] == [0, 1]
+    # each process wrote the record of the displacement it computed
+    assert two["records"] == serial["records"] == ["displacement-001.npz",
+                                                   "displacement-002.npz"]
+    # the same forces whichever process computed them (an analytic model: to rounding)
+    assert np.allclose(two["frequencies"], serial["frequencies"], rtol=1e-12)
+    assert all(np.allclose(f, two["frequencies"]) for f in two["frequencies_on_every_process"])

@@ -7,14 +7,19 @@ import pwsolid
 
 PACKAGE = Path(pwsolid.__file__).parent
 LAYERS = {
-    0: {"units", "errors", "resources", "_version", "progress", "safe_files"},
-    1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos", "optimize"},
-    2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath"},
+    0: {"units", "errors", "resources", "_version", "progress", "safe_files",
+        "atomic_masses"},
+    1: {"eigensolver", "mixing", "occupations", "xc", "eos", "dos", "optimize", "elasticity"},
+    2: {"crystal", "symmetry", "kpoints", "basis", "fft", "bandpath",
+        "force_constants", "phonon_spectra"},
     3: {"pseudo", "electrostatics", "hamiltonian", "energies", "xc_grid"},  # pseudo/atom.py too
     4: {"scf", "parallel", "settings", "store", "warm_start", "preflight", "forces", "stress"},
     5: {"workflows"},
-    6: {"config", "results", "plots", "cli", "commands", "relaxation_keys", "interop"},
+    6: {"config", "results", "plots", "cli", "commands", "relaxation_keys", "interop",
+        "phonon_keys", "elastic_keys"},
 }
+LAYERS[1].add("thermodynamics")   # harmonic thermodynamics kernels (arrays in, arrays out)
+LAYERS[6].add("thermal_keys")     # the [thermal] table of the quasi-harmonic command
 LAYER_OF = {name: layer for layer, names in LAYERS.items() for name in names}
 
 

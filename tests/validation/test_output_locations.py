@@ -56,6 +56,10 @@ def setup(tmp_path, monkeypatch):
                         "static_response", _no_work)
     monkeypatch.setattr(importlib.import_module("pwsolid.workflows.jellium"),
                         "jellium_convergence", _no_work)
+    for name in ("jellium_surface", "surface_convergence"):
+        module = importlib.import_module("pwsolid.workflows.jellium_surface")
+        if hasattr(module, name):
+            monkeypatch.setattr(module, name, _no_work)
     monkeypatch.chdir(tmp_path)
     (tmp_path / "a-directory").mkdir()
     (tmp_path / "a-file.txt").write_text("not a directory\n")
@@ -86,6 +90,8 @@ FILE_OPTIONS = [
     ("compare-structures --result-file",
      lambda i, p: ["compare-structures", i, i.replace("tiny-si", "tiny-si-2"), "--result-file",
                    p]),
+    ("jellium-surface --points-file",
+     lambda i, p: ["jellium-surface", "--radii", "4", "--points-file", p]),
 ]
 DIRECTORY_OPTIONS = [
     ("relax-structure", lambda i, p: ["relax-structure", i, "--output-dir", p]),
@@ -99,6 +105,11 @@ DIRECTORY_OPTIONS = [
     ("jellium", lambda i, p: ["jellium", "--output-dir", p]),
     ("density-response", lambda i, p: ["density-response", "--output-dir", p]),
     ("xc-testbench", lambda i, p: ["xc-testbench", "--output-dir", p]),
+    ("phonons", lambda i, p: ["phonons", i, "--output-dir", p]),
+    ("jellium-surface", lambda i, p: ["jellium-surface", "--radii", "4", "--output-dir", p]),
+    ("quasi-harmonic", lambda i, p: ["quasi-harmonic", i, "--output-dir", p]),
+    ("vibrational-thermodynamics",
+     lambda i, p: ["vibrational-thermodynamics", i, "--output-dir", p]),
 ]
 INPUT_KEYS = ["result_file", "density_file", "checkpoint_file"]
 

@@ -299,7 +299,8 @@ def test_fit_recovers_a_perturbed_coefficient_from_its_own_atom():
     # Targets from the silicon 1998 pseudo-atom itself; one coefficient moved by 0.05 Ha
     # must come back (to 1e-4 Ha: the targets are matched to the SCF tolerance), and the
     # errors the report gives must then vanish.
-    from pwsolid.pseudo.fitting import AtomTarget, fit_separable_form, separable_form
+    from pwsolid.pseudo.fitting import (AtomTarget, fit_separable_form, outside_charge,
+                                        separable_form)
 
     pp = load_pseudopotential(pseudopotential_dir() / "Si-hartwigsen-goedecker-hutter.toml")
     params = {"r_loc": pp.local.r_loc, "c1": pp.local.c1}
@@ -314,8 +315,7 @@ def test_fit_recovers_a_perturbed_coefficient_from_its_own_atom():
     targets = []
     for configuration in ("3s2 3p2", "3s1 3p3"):
         atom = solve_radial_atom(local.real_space, channels, configuration, basis=basis)
-        charge = {(k, 1.5): float(basis.weights @ (u * u * (basis.points > 1.5)))
-                  for k, u in atom.orbitals.items()}
+        charge = {(k, 1.5): outside_charge(basis, u, 1.5) for k, u in atom.orbitals.items()}
         targets.append(AtomTarget(configuration, dict(atom.eigenvalues), charge))
     start = dict(params, h0_1=params["h0_1"] + 0.05)
     report = fit_separable_form(4, targets, start, ["h0_1"], basis=basis, max_iterations=20)
