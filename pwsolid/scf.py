@@ -8,6 +8,7 @@ owns the loop, the stopping rules and the log, and returns a :class:`GroundState
 
 from __future__ import annotations
 
+import copy
 import dataclasses
 import time
 import warnings
@@ -679,6 +680,9 @@ class GroundState:
     messages: tuple[str, ...] = ()
     spin_densities: np.ndarray | None = None   # (2, *grid) up and down, spin-polarised runs
     kinetic_density: np.ndarray | None = None  # meta-GGAs: tau of the final orbitals, like n
+    # (SCFState, PulayMixer) at the stop, kept on request (``resumable``) so that
+    # ``continue_from`` can carry on to tighter tolerances
+    continuation: tuple | None = field(default=None, repr=False)
 
     @property
     def magnetization(self) -> float | None:
@@ -738,7 +742,8 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
                  checkpoint_every: int = 1,
                  initial_wavefunctions: WavefunctionStart | None = None,
                  start_residual: float | None = None,
-                 accept_mismatch: bool = False) -> GroundState:
+                 accept_mismatch: bool = False, resumable: bool = False,
+                 continue_from: GroundState | None = None) -> GroundState:
     """Self-consistent Kohn-Sham ground state of a crystal.
 
     Parameters
@@ -772,6 +777,18 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
     accept_mismatch
         Continue from a checkpoint of another calculation (e.g. another functional)
         instead of refusing it; the differences are listed in the result's messages.
+    resumable
+        Keep the SCF's last state and Pulay history in the result (``continuation``),
+        for a later ``continue_from``.
+    continue_from
+        A ``resumable`` result of the same crystal and basis, stopped at looser
+        tolerances: the SCF carries on from its last densities, orbitals and Pulay
+        history (the iteration count and history continue too) to the tolerances
+        of ``setup`` or ``settings``, instead of starting again. Measured on the
+        displaced 8-atom silicon relaxation (benchmarks/relaxation_steps.py): the
+        confirmation of a loosely converged step took 2-3 iterations instead of
+        5-6 from its output density. ``initial_density`` and ``initial_wavefunctions``
+        are then ignored.
 
     Returns
     -------
@@ -796,7 +813,7 @@ def ground_state(crystal: Crystal, settings: GroundStateSettings | None = None, 
         try:
             return _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
                                  max(1, int(checkpoint_every)), initial_wavefunctions,
-                                 start_residual, accept_mismatch)
+                                 start_residual, accept_mismatch, resumable, continue_from)
         except (FloatingPointError, np.linalg.LinAlgError) as exc:
             raise ConvergenceError(
                 f"the eigensolver broke down ({exc}); lower self_consistency.mixing_weight or "
@@ -896,7 +913,8 @@ def _resume(setup: SystemSetup, state: SCFState, mixer: PulayMixer, path,
 
 def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
                   checkpoint_every, initial_wavefunctions=None,
-                  start_residual=None, accept_mismatch=False) -> GroundState:
+                  start_residual=None, accept_mismatch=False, resumable=False,
+                  continue_from=None) -> GroundState:
     t_start = time.perf_counter()
     setup = setup or prepare(crystal, settings)
     s = setup.settings
@@ -915,6 +933,8 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
         state.residual = float(start_residual)
     if initial_wavefunctions is not None:
         state.wavefunctions = _start_wavefunctions(setup, initial_wavefunctions)
+    if continue_from is not None:
+        state, mixer = _continued(continue_from)
     emit = log or (lambda line: None)
     messages = []
     if checkpoint is not None and Path(checkpoint).exists():
@@ -988,4 +1008,28 @@ def _ground_state(crystal, settings, log, initial_density, setup, checkpoint,
         wavefunctions=state.wavefunctions, history=state.history,
         band_edges=edges, smearing=state.smearing, hamiltonian_applications=state.applications,
         wall_seconds=time.perf_counter() - t_start, fft_seconds=setup.fft.seconds,
-        blas_seconds=state.blas_seconds, messages=tuple(messages))
+        blas_seconds=state.blas_seconds, messages=tuple(messages),
+        continuation=(state, mixer) if resumable else None)
+
+
+def next_input_density(result: GroundState) -> np.ndarray | None:
+    """The density a ``resumable`` result's SCF would have tried next (its last output
+    Pulay-mixed with the history; (2, ...) spin densities when spin-polarised), or None.
+    Nearer self-consistency than the output density, whose error in an insulator is
+    the input's amplified by the dielectric response: a better start for a neighbour."""
+    if result.continuation is None:
+        return None
+    return _continued(result)[0].density
+
+
+def _continued(result: GroundState) -> tuple[SCFState, PulayMixer]:
+    """A copy of the state and mixer a ``resumable`` result stopped with, mixed once (the
+    SCF stops before mixing its last output), to carry on from."""
+    if result.continuation is None:
+        raise ValueError("continue_from needs a result of ground_state(..., resumable=True)")
+    state, mixer = result.continuation
+    state = dataclasses.replace(state, history=[dict(h) for h in state.history],
+                                wavefunctions=list(state.wavefunctions))
+    mixer = copy.deepcopy(mixer)
+    _mix(state, mixer)
+    return state, mixer

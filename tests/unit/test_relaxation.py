@@ -275,12 +275,12 @@ def test_scf_tolerances_follow_the_forces():
 
     s = GroundStateSettings(energy_tolerance=1e-8, density_tolerance=1e-6)
     assert _step_settings(s, {}, 1e-4) == (s, False)              # first step: as given
-    # early: energy change 0.03 bohr x F, density residual 0.1 F per Ha/bohr
+    # early: energy change 0.03 bohr x F, density residual 0.15 F per Ha/bohr
     loose, flag = _step_settings(s, {"force": 3e-3}, 1e-4)          # 30 x the threshold
-    assert flag and loose.density_tolerance == pytest.approx(3e-4)
+    assert flag and loose.density_tolerance == pytest.approx(4.5e-4)
     assert loose.energy_tolerance == pytest.approx(9e-5)
     capped, _ = _step_settings(s, {"force": 10.0}, 1e-4)
-    assert capped.density_tolerance == 1e-3 and capped.energy_tolerance == 1e-3
+    assert capped.density_tolerance == 2e-3 and capped.energy_tolerance == 1e-3
     # never tighter than the settings' own
     floor, _ = _step_settings(s.replace(density_tolerance=1e-3), {"force": 1e-3}, 1e-4)
     assert floor.density_tolerance == 1e-3 and floor.energy_tolerance == pytest.approx(3e-5)
@@ -296,3 +296,35 @@ def test_fresh_ignores_a_checkpoint(tmp_path):
     again = relax_structure(start, relaxation=relax, evaluator=model, checkpoint=path,
                             fresh=True)
     assert not any("resumed" in m for m in again.messages) and len(again.steps) == 2
+
+
+
+@pytest.mark.slow
+def test_a_loose_step_is_confirmed_by_carrying_its_scf_on():
+    # The confirmation of a loosely converged step carries the same SCF on to the
+    # settings' tolerances; the result must be that of a straight SCF at those
+    # tolerances (invariance: the ground state does not depend on the path), and the
+    # step counts only the further iterations.
+    from conftest import LOCAL_SILICON
+    from pwsolid.workflows.relaxation_evaluation import scf_evaluator
+
+    s = GroundStateSettings(cutoff=5.0, kpoint_mesh=(2, 2, 2), kpoint_shift=(0, 0, 0),
+                            pseudopotentials=LOCAL_SILICON)
+    si = diamond(10.26, "Si")
+
+    def displaced(d):
+        return Crystal(si.lattice, si.species, si.positions + np.array([[d, -d, 0.5 * d],
+                                                                        [0, 0, 0]]))
+
+    evaluate = scf_evaluator(s, symmetrize=False, force_threshold=1e-3)
+    far = evaluate(displaced(0.01), None)           # large forces: the next step runs loose
+    assert np.abs(far.forces).max() > 3e-3
+    loose = evaluate(displaced(0.0005), far)
+    assert loose.loose and np.abs(loose.forces).max() < 1e-3
+    confirmed = evaluate(displaced(0.0005), loose)
+    assert not confirmed.loose and confirmed.scf_converged
+    gs, before = confirmed.ground_state, loose.ground_state
+    assert gs.iterations == before.iterations + confirmed.scf_iterations   # carried on
+    straight = scf_evaluator(s, symmetrize=False)(displaced(0.0005), None)
+    assert confirmed.energy == pytest.approx(straight.energy, abs=1e-8)
+    assert np.abs(confirmed.forces - straight.forces).max() < 1e-5

@@ -195,3 +195,31 @@ def test_bonding_density_is_fitted_over_several_earlier_structures():
     assert np.allclose(out, exact, rtol=0, atol=1e-12 * exact.max())
     one = moved_atoms_density(n_old, LATTICE, old, new, species, GAUSS, earlier=(n_1, p_1))
     assert np.abs(one - exact).max() > 1e-6           # the last move alone misses it
+
+
+def test_an_scf_carried_on_to_tighter_tolerances_ends_at_the_straight_ground_state():
+    # Invariance (common practice): the self-consistent solution does not depend on how
+    # the SCF got there. A loosely converged SCF carried on (same densities, orbitals
+    # and Pulay history) reaches the ground state of a straight SCF to the tight
+    # tolerances, in fewer further iterations than the straight one takes in all.
+    from pwsolid.scf import next_input_density
+
+    si = diamond(10.26, "Si")
+    tight = SETTINGS.replace(energy_tolerance=1e-9, density_tolerance=1e-7)
+    loose = ground_state(si, tight.replace(energy_tolerance=1e-4, density_tolerance=1e-2),
+                         resumable=True)
+    before = [dict(h) for h in loose.history]
+    carried = ground_state(si, tight, setup=prepare(si, tight), continue_from=loose)
+    straight = ground_state(si, tight)
+    assert loose.converged and carried.converged and straight.converged
+    assert carried.free_energy == pytest.approx(straight.free_energy, abs=1e-8)
+    assert np.abs(carried.density - straight.density).max() < 1e-5
+    assert carried.history[:loose.iterations] == before        # the history goes on
+    assert loose.history == before                              # the loose result is kept
+    assert carried.iterations - loose.iterations < straight.iterations
+    # the Pulay-mixed next density is nearer self-consistency than the output density
+    mixed = next_input_density(loose)
+    assert np.abs(mixed - straight.density).sum() < np.abs(loose.density - straight.density).sum()
+    assert next_input_density(straight) is None                 # not kept unless asked
+    with pytest.raises(ValueError):
+        ground_state(si, tight, continue_from=straight)
